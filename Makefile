@@ -1,0 +1,41 @@
+# Two commands do all set-up on a fresh machine: `make demo` and `make test`.
+PY      ?= python3
+VENV    := .venv
+VPY     := $(VENV)/bin/python
+STAMP   := $(VENV)/.installed-test
+DEMO    := examples/harbour
+
+.PHONY: demo test bench fuzz wheel clean
+
+$(VPY):
+	$(PY) -m venv $(VENV)
+	$(VPY) -m pip install -q --upgrade pip
+
+$(VENV)/.installed: pyproject.toml | $(VPY)
+	$(VPY) -m pip install -q -e .
+	touch $@
+
+$(STAMP): pyproject.toml | $(VPY)
+	$(VPY) -m pip install -q -e '.[test]'
+	touch $@ $(VENV)/.installed
+
+demo: $(VENV)/.installed
+	@echo "== a plan that should pass"
+	-$(VENV)/bin/plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-good.plan
+	@echo
+	@echo "== a plan that should fail (every problem reported: --keep-going)"
+	-$(VENV)/bin/plansieve check --keep-going --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan
+	@echo
+	@echo "(exit codes: 0 valid, 1 invalid, 2 unreadable input)"
+
+test: $(STAMP)
+	$(VPY) -m pytest -q -p no:cacheprovider; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 1; fi; exit $$rc
+
+bench: $(STAMP)
+	$(VPY) bench/run_all.py
+
+fuzz: $(STAMP)
+	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -m slow tests
+
+clean:
+	rm -rf $(VENV) build dist *.egg-info

@@ -1,0 +1,267 @@
+"""Turn lifted schemas into ground actions the simulator can run quickly.
+
+A ground action keeps the plain STRIPS core as frozensets — ``pre_pos``,
+``pre_neg``, ``adds``, ``dels`` — and puts everything else (numeric conditions,
+disjunctions, conditional and numeric effects) into separate fields, so the
+common case reads ``pre_pos <= state`` and ``(state - dels) | adds``.
+Quantifiers are expanded over the task's objects here, once per distinct step,
+not on every visit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+
+from plansieve.critics.model import (
+    Action, Add, And, Arith, Assign, Atom, Compare, Delete, DurationRef, Equal, Exists,
+    Forall, ForallEffect, FluentRef, Imply, Not, Number, Or, Param, Task, Timed, TimedEffect,
+    Truth, ViolatedRef, When,
+)
+
+TRUE = Truth(True)
+FALSE = Truth(False)
+
+
+def exact(x: float | int) -> int | Fraction:
+    """A PDDL number as an exact rational, so ``0.1 + 0.2 = 0.3`` holds as written."""
+    if isinstance(x, (int, Fraction)):
+        return x
+    if float(x).is_integer():
+        return int(x)
+    return Fraction(repr(float(x)))
+
+
+@dataclass(frozen=True, slots=True)
+class Calc:
+    """Ground arithmetic: ``op`` over ground expressions (numbers, fluent keys, Calcs)."""
+
+    op: str
+    args: tuple
+
+
+@dataclass(frozen=True, slots=True)
+class Conditional:
+    """A ground ``when`` effect: its condition is read in the state before the step."""
+
+    condition: object  # ground formula
+    adds: frozenset
+    dels: frozenset
+    numeric: tuple  # ((op, fluent key, ground expr), ...)
+
+
+@dataclass(frozen=True, slots=True)
+class GroundAction:
+    name: str
+    args: tuple[str, ...]
+    schema: Action
+    pre_pos: frozenset
+    pre_neg: frozenset
+    pre_other: tuple  # ground formulas needing general evaluation
+    adds: frozenset
+    dels: frozenset
+    numeric: tuple
+    conditional: tuple[Conditional, ...]
+
+    @property
+    def is_plain(self) -> bool:
+        """True when the action is pure STRIPS: set algebra is all it needs."""
+        return not (self.pre_other or self.numeric or self.conditional)
+
+
+class Universe:
+    """The task's objects and their types, for type checks and quantifier expansion."""
+
+    def __init__(self, task: Task) -> None:
+        domain = task.domain
+        self.domain = domain
+        self.objects = dict(task.objects_of())
+        # every type each object belongs to, ancestors included
+        ancestors: dict[str, frozenset[str]] = {}
+
+        def up(t: str) -> frozenset[str]:
+            if t not in ancestors:
+                ancestors[t] = frozenset()  # guards against cycles
+                out = {t, "object"}
+                for parent in domain.types.get(t, ()):
+                    out |= up(parent)
+                ancestors[t] = frozenset(out)
+            return ancestors[t]
+
+        self.kinds: dict[str, frozenset[str]] = {
+            o: frozenset().union(*(up(t) for t in ts)) if ts else frozenset({"object"})
+            for o, ts in self.objects.items()
+        }
+        self._of_types: dict[tuple[str, ...], tuple[str, ...]] = {}
+
+    def fits(self, obj: str, types: tuple[str, ...]) -> bool:
+        kinds = self.kinds.get(obj)
+        return kinds is not None and any(t in kinds for t in types)
+
+    def of_types(self, types: tuple[str, ...]) -> tuple[str, ...]:
+        """Objects of any of ``types``, in declaration order."""
+        got = self._of_types.get(types)
+        if got is None:
+            got = tuple(o for o, k in self.kinds.items() if any(t in k for t in types))
+            self._of_types[types] = got
+        return got
+
+    def bindings(self, params: tuple[Param, ...]):
+        """Every assignment of objects to ``params`` (for quantifier expansion)."""
+        combos: list[dict[str, str]] = [{}]
+        for p in params:
+            pool = self.of_types(p.types)
+            combos = [{**c, p.name: o} for c in combos for o in pool]
+        return combos
+
+
+# ---------------------------------------------------------------------------
+# Substitution with quantifier expansion and simplification
+
+
+def _term(t: str, sub: dict[str, str]) -> str:
+    return sub.get(t, t) if t.startswith("?") else t
+
+
+def ground_expr(e, sub: dict[str, str]):
+    if isinstance(e, Number):
+        return exact(e.value)
+    if isinstance(e, FluentRef):
+        return (e.function, *(_term(a, sub) for a in e.args))
+    if isinstance(e, Arith):
+        return Calc(e.op, tuple(ground_expr(a, sub) for a in e.args))
+    if isinstance(e, (DurationRef, ViolatedRef)):
+        return e
+    raise TypeError(f"not an expression: {e!r}")
+
+
+def ground_formula(f, sub: dict[str, str], universe: Universe):
+    """Substitute, expand quantifiers, resolve equality; returns a simplified ground formula.
+
+    Atoms become ``Atom`` with ground args; comparisons keep ``Compare`` with ground
+    expression tuples (see :func:`ground_expr`).
+    """
+    if isinstance(f, Atom):
+        return Atom(f.predicate, tuple(_term(a, sub) for a in f.args))
+    if isinstance(f, Truth):
+        return f
+    if isinstance(f, Equal):  # kept (not folded) so a failed one still reads as written
+        return Equal(_term(f.left, sub), _term(f.right, sub))
+    if isinstance(f, Not):
+        body = ground_formula(f.body, sub, universe)
+        if isinstance(body, Truth):
+            return FALSE if body.value else TRUE
+        if isinstance(body, Not):
+            return body.body
+        return Not(body)
+    if isinstance(f, And):
+        return _conj([ground_formula(p, sub, universe) for p in f.parts])
+    if isinstance(f, Or):
+        return _disj([ground_formula(p, sub, universe) for p in f.parts])
+    if isinstance(f, Imply):
+        return _disj([ground_formula(Not(f.condition), sub, universe),
+                      ground_formula(f.then, sub, universe)])
+    if isinstance(f, Forall):
+        return _conj([ground_formula(f.body, {**sub, **b}, universe)
+                      for b in universe.bindings(f.params)])
+    if isinstance(f, Exists):
+        return _disj([ground_formula(f.body, {**sub, **b}, universe)
+                      for b in universe.bindings(f.params)])
+    if isinstance(f, Compare):
+        return Compare(f.op, ground_expr(f.left, sub), ground_expr(f.right, sub))
+    if isinstance(f, Timed):
+        return Timed(f.when, ground_formula(f.body, sub, universe))
+    raise TypeError(f"cannot ground {type(f).__name__} here")
+
+
+def _conj(parts: list):
+    out = []
+    for p in parts:
+        if isinstance(p, Truth):
+            if not p.value:
+                return FALSE
+            continue
+        out.extend(p.parts if isinstance(p, And) else (p,))
+    return out[0] if len(out) == 1 else (And(tuple(out)) if out else TRUE)
+
+
+def _disj(parts: list):
+    out = []
+    for p in parts:
+        if isinstance(p, Truth):
+            if p.value:
+                return TRUE
+            continue
+        out.extend(p.parts if isinstance(p, Or) else (p,))
+    return out[0] if len(out) == 1 else (Or(tuple(out)) if out else FALSE)
+
+
+def conjuncts(f) -> tuple:
+    """The top-level parts of a ground formula that must all hold."""
+    if f is None or f == TRUE:
+        return ()
+    return f.parts if isinstance(f, And) else (f,)
+
+
+# ---------------------------------------------------------------------------
+# Effects
+
+
+def _ground_effects(effects, sub, universe, adds, dels, numeric, conditional):
+    for e in effects:
+        if isinstance(e, Add):
+            adds.add((e.atom.predicate, *(_term(a, sub) for a in e.atom.args)))
+        elif isinstance(e, Delete):
+            dels.add((e.atom.predicate, *(_term(a, sub) for a in e.atom.args)))
+        elif isinstance(e, Assign):
+            numeric.append((e.op, ground_expr(e.fluent, sub), ground_expr(e.value, sub)))
+        elif isinstance(e, ForallEffect):
+            for b in universe.bindings(e.params):
+                _ground_effects(e.effects, {**sub, **b}, universe, adds, dels, numeric,
+                                conditional)
+        elif isinstance(e, When):
+            cond = ground_formula(e.condition, sub, universe)
+            if cond == FALSE:
+                continue
+            c_adds: set = set()
+            c_dels: set = set()
+            c_num: list = []
+            nested: list = []
+            _ground_effects(e.effects, sub, universe, c_adds, c_dels, c_num, nested)
+            if cond == TRUE:
+                adds |= c_adds
+                dels |= c_dels
+                numeric.extend(c_num)
+                conditional.extend(nested)
+            else:
+                conditional.append(Conditional(cond, frozenset(c_adds), frozenset(c_dels),
+                                               tuple(c_num)))
+                # a when inside a when: both conditions must hold
+                for n in nested:
+                    conditional.append(Conditional(_conj([cond, n.condition]), n.adds, n.dels,
+                                                   n.numeric))
+        elif isinstance(e, TimedEffect):
+            raise TypeError("timed effects belong to durative actions")
+        else:
+            raise TypeError(f"not an effect: {e!r}")
+
+
+def ground_action(schema: Action, args: tuple[str, ...], universe: Universe) -> GroundAction:
+    """Compile one instantiation of ``schema``; arity and types are checked by the caller."""
+    sub = {p.name: a for p, a in zip(schema.params, args)}
+    pos, neg, other = set(), set(), []
+    pre = ground_formula(schema.precondition, sub, universe) if schema.precondition else TRUE
+    for c in conjuncts(pre):
+        if isinstance(c, Atom):
+            pos.add(c.key)
+        elif isinstance(c, Not) and isinstance(c.body, Atom):
+            neg.add(c.body.key)
+        else:
+            other.append(c)  # includes FALSE, which never holds
+    adds: set = set()
+    dels: set = set()
+    numeric: list = []
+    conditional: list = []
+    _ground_effects(schema.effects, sub, universe, adds, dels, numeric, conditional)
+    return GroundAction(schema.name, args, schema, frozenset(pos), frozenset(neg), tuple(other),
+                        frozenset(adds), frozenset(dels), tuple(numeric), tuple(conditional))

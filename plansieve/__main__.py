@@ -1,0 +1,3 @@
+from plansieve.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,61 @@
+"""The human-readable report of ``plansieve check``: findings grouped by step."""
+
+from __future__ import annotations
+
+from plansieve.critics.check import CheckResult
+from plansieve.critics.plan import Plan
+
+
+def _body(message: str, step_text: str | None) -> str:
+    """The message without the step it starts with (the heading already shows the step)."""
+    if step_text and message.startswith(step_text):
+        return message[len(step_text):].lstrip(": ")
+    return message
+
+
+def _hints(finding, limit: int = 4) -> list[str]:
+    hints = getattr(finding, "hints", None) or []
+    if not hints:
+        return []
+    shown = ", ".join(h.call() for h in hints[:limit])
+    more = f" (+{len(hints) - limit} more)" if len(hints) > limit else ""
+    return [f"        could be made true by: {shown}{more}"]
+
+
+def render_check(result: CheckResult, plan: Plan, *, domain: str, problem: str,
+                 plan_name: str) -> str:
+    lines = [
+        "plansieve check",
+        f"  domain   {domain}",
+        f"  problem  {problem}",
+        f"  plan     {plan_name}  ({len(plan)} step{'s' if len(plan) != 1 else ''})",
+        "",
+    ]
+    for v in result.verdicts:
+        state = "pass" if v.passed else "FAIL"
+        kind = "sound" if v.sound else "advisory"
+        n = len(v.findings)
+        lines.append(f"  {v.critic} {v.version} ({kind}): {state}, {n} finding"
+                     f"{'s' if n != 1 else ''}, {v.steps_checked} of {len(plan)} steps run, "
+                     f"{v.seconds * 1000:.2f} ms")
+    groups: dict[int | None, list] = {}
+    for f in result.findings:
+        groups.setdefault(f.step, []).append(f)
+    for step in sorted(groups, key=lambda s: (s is None, s or 0)):
+        lines.append("")
+        if step is None:
+            lines.append("  after the last step")
+        else:
+            ps = plan.steps[step - 1]
+            where = f"   (line {ps.line})" if ps.line else ""
+            lines.append(f"  step {step}  {ps.call()}{where}")
+        for f in groups[step]:
+            lines.append(f"    - {f.code}: {_body(f.message, f.step_text)}")
+            lines.extend(_hints(f))
+    lines.append("")
+    if result.passed:
+        lines.append("ACCEPTED: every step applies and the goal holds in the final state.")
+    else:
+        total = len(result.findings)
+        lines.append(f"REJECTED: {total} finding{'s' if total != 1 else ''}.")
+    return "\n".join(lines) + "\n"
