@@ -21,12 +21,15 @@ $(STAMP): pyproject.toml | $(VPY)
 
 demo: $(VENV)/.installed
 	@echo "== a plan that should pass"
-	-$(VENV)/bin/plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-good.plan
+	@echo "$$ plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-good.plan"
+	@$(VENV)/bin/plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl \
+	    $(DEMO)/plan-good.plan; rc=$$?; echo "(exit code $$rc: 0 means valid)"; [ $$rc -eq 0 ]
 	@echo
-	@echo "== a plan that should fail (every problem reported: --keep-going)"
-	-$(VENV)/bin/plansieve check --keep-going --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan
-	@echo
-	@echo "(exit codes: 0 valid, 1 invalid, 2 unreadable input)"
+	@echo "== a plan that should fail; --keep-going reports every problem in one run"
+	@echo "$$ plansieve check --keep-going --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan"
+	@$(VENV)/bin/plansieve check --keep-going --domain $(DEMO)/domain.pddl \
+	    --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan; \
+	    rc=$$?; echo "(exit code $$rc: 1 means not valid)"; [ $$rc -eq 1 ]
 
 test: $(STAMP)
 	$(VPY) -m pytest -q -p no:cacheprovider; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 1; fi; exit $$rc

@@ -62,11 +62,8 @@ class GroundAction:
     dels: frozenset
     numeric: tuple
     conditional: tuple[Conditional, ...]
-
-    @property
-    def is_plain(self) -> bool:
-        """True when the action is pure STRIPS: set algebra is all it needs."""
-        return not (self.pre_other or self.numeric or self.conditional)
+    # True when the action is pure STRIPS: set algebra is all it needs.
+    plain: bool
 
 
 class Universe:
@@ -93,6 +90,7 @@ class Universe:
             for o, ts in self.objects.items()
         }
         self._of_types: dict[tuple[str, ...], tuple[str, ...]] = {}
+        self._of_types_set: dict[tuple[str, ...], frozenset[str]] = {}
 
     def fits(self, obj: str, types: tuple[str, ...]) -> bool:
         kinds = self.kinds.get(obj)
@@ -104,6 +102,13 @@ class Universe:
         if got is None:
             got = tuple(o for o, k in self.kinds.items() if any(t in k for t in types))
             self._of_types[types] = got
+        return got
+
+    def of_types_set(self, types: tuple[str, ...]) -> frozenset[str]:
+        """The same objects as a set, for membership tests."""
+        got = self._of_types_set.get(types)
+        if got is None:
+            got = self._of_types_set[types] = frozenset(self.of_types(types))
         return got
 
     def bindings(self, params: tuple[Param, ...]):
@@ -246,22 +251,97 @@ def _ground_effects(effects, sub, universe, adds, dels, numeric, conditional):
             raise TypeError(f"not an effect: {e!r}")
 
 
-def ground_action(schema: Action, args: tuple[str, ...], universe: Universe) -> GroundAction:
-    """Compile one instantiation of ``schema``; arity and types are checked by the caller."""
-    sub = {p.name: a for p, a in zip(schema.params, args)}
-    pos, neg, other = set(), set(), []
-    pre = ground_formula(schema.precondition, sub, universe) if schema.precondition else TRUE
-    for c in conjuncts(pre):
-        if isinstance(c, Atom):
-            pos.add(c.key)
-        elif isinstance(c, Not) and isinstance(c.body, Atom):
-            neg.add(c.body.key)
+@dataclass(frozen=True, slots=True)
+class Template:
+    """A schema compiled once: its literal preconditions and add/delete effects as
+    ``(predicate, spec)`` pairs, where spec is a tuple of parameter indexes, or — when
+    the literal names a constant — a one-item list holding a tuple of indexes and
+    constants, so grounding them is index lookups. What is not a plain literal
+    (numeric, quantified, disjunctive, conditional, numeric effects) stays lifted in
+    ``other_pre`` and ``other_effects`` and goes through the general grounding."""
+
+    pos: tuple
+    neg: tuple
+    adds: tuple
+    dels: tuple
+    other_pre: tuple
+    other_effects: tuple
+
+
+def _flat_conjuncts(f):
+    if f is None:
+        return
+    if isinstance(f, And):
+        for p in f.parts:
+            yield from _flat_conjuncts(p)
+    elif not (isinstance(f, Truth) and f.value):
+        yield f
+
+
+def compile_schema(schema: Action) -> Template:
+    index = {p.name: i for i, p in enumerate(schema.params)}
+
+    def spec(atom: Atom):
+        out = []
+        for a in atom.args:
+            if a.startswith("?"):
+                if a not in index:
+                    return None  # bound by a quantifier: not a plain literal
+                out.append(index[a])
+            else:
+                out.append(a)
+        if all(isinstance(i, int) for i in out):
+            return (atom.predicate, tuple(out))
+        return (atom.predicate, [tuple(out)])  # names a constant: the slower path
+
+    pos, neg, other_pre = [], [], []
+    for c in _flat_conjuncts(schema.precondition):
+        if isinstance(c, Atom) and (sp := spec(c)) is not None:
+            pos.append(sp)
+        elif isinstance(c, Not) and isinstance(c.body, Atom) and (sp := spec(c.body)) is not None:
+            neg.append(sp)
         else:
-            other.append(c)  # includes FALSE, which never holds
-    adds: set = set()
-    dels: set = set()
+            other_pre.append(c)
+    adds, dels, other_effects = [], [], []
+    for e in schema.effects:
+        if isinstance(e, Add) and (sp := spec(e.atom)) is not None:
+            adds.append(sp)
+        elif isinstance(e, Delete) and (sp := spec(e.atom)) is not None:
+            dels.append(sp)
+        else:
+            other_effects.append(e)
+    return Template(tuple(pos), tuple(neg), tuple(adds), tuple(dels), tuple(other_pre),
+                    tuple(other_effects))
+
+
+def _instances(pairs: tuple, args: tuple[str, ...]) -> set:
+    get = args.__getitem__
+    return {(pred, *map(get, spec)) if spec.__class__ is tuple else
+            (pred, *[args[i] if i.__class__ is int else i for i in spec[0]])
+            for pred, spec in pairs}
+
+
+def ground_action(schema: Action, args: tuple[str, ...], universe: Universe,
+                  template: Template | None = None) -> GroundAction:
+    """Compile one instantiation of ``schema``; arity and types are checked by the caller."""
+    t = template or compile_schema(schema)
+    pos, neg = _instances(t.pos, args), _instances(t.neg, args)
+    other: list = []
+    if t.other_pre:
+        sub = {p.name: a for p, a in zip(schema.params, args)}
+        for c in conjuncts(ground_formula(And(t.other_pre), sub, universe)):
+            if isinstance(c, Atom):
+                pos.add(c.key)
+            elif isinstance(c, Not) and isinstance(c.body, Atom):
+                neg.add(c.body.key)
+            else:
+                other.append(c)  # includes FALSE, which never holds
+    adds, dels = _instances(t.adds, args), _instances(t.dels, args)
     numeric: list = []
     conditional: list = []
-    _ground_effects(schema.effects, sub, universe, adds, dels, numeric, conditional)
+    if t.other_effects:
+        sub = {p.name: a for p, a in zip(schema.params, args)}
+        _ground_effects(t.other_effects, sub, universe, adds, dels, numeric, conditional)
     return GroundAction(schema.name, args, schema, frozenset(pos), frozenset(neg), tuple(other),
-                        frozenset(adds), frozenset(dels), tuple(numeric), tuple(conditional))
+                        frozenset(adds), frozenset(dels), tuple(numeric), tuple(conditional),
+                        not (other or numeric or conditional))

@@ -99,7 +99,7 @@ class HintIndex:
                 hints.extend(self.for_fluent(key, up * sign))
         seen, unique = set(), []
         for h in hints:
-            k = (h.action, tuple(h.args), h.effect)
+            k = (h.action, tuple(h.args))  # one hint per call, naming its first helpful effect
             if k not in seen:
                 seen.add(k)
                 unique.append(h)

@@ -14,14 +14,14 @@ from plansieve.critics import render
 from plansieve.critics.grounding import GroundAction
 from plansieve.critics.model import Compare, Task
 from plansieve.critics.plan import Plan
-from plansieve.critics.state import DivisionByZero, State, Undefined, apply, holds, value
+from plansieve.critics.state import (
+    DivisionByZero, EffectClash, State, Undefined, apply, holds, value,
+)
 from plansieve.critics.verdict import DivisionByZero as DivisionByZeroFinding
-from plansieve.critics.verdict import FluentUndefined, GoalUnmet, PreconditionFalse, Verdict
+from plansieve.critics.verdict import (
+    EffectConflict, FluentUndefined, GoalUnmet, PreconditionFalse, Verdict,
+)
 from plansieve.critics.world import World
-
-
-def _as_float(x) -> float:
-    return float(x)
 
 
 class PlanSimulator:
@@ -48,25 +48,38 @@ class PlanSimulator:
         started = time.perf_counter()
         world = self.world(task)
         state = world.initial_state()
+        atoms = state.atoms
+        cache = world.cache
+        keep_going = self.keep_going
         findings: list = []
         checked = 0
         stopped = False
         for number, step in enumerate(plan.steps, 1):
             checked = number
-            resolved = world.resolve(step, number)
-            if isinstance(resolved, list):
-                findings.extend(resolved)
-                if not self.keep_going:
+            resolved = cache.get((step.action, step.args)) or world.resolve(step)
+            if resolved.__class__ is list:
+                findings.extend(world.located(resolved, number, step))
+                if not keep_going:
                     stopped = True
                     break
                 continue
-            text = step.call()
             for ga in resolved:
+                # the plain STRIPS step that applies: (state - dels) | adds, nothing else to do
+                if ga.plain and ga.pre_pos <= atoms and ga.pre_neg.isdisjoint(atoms):
+                    atoms -= ga.dels
+                    atoms |= ga.adds
+                    continue
+                text = step.call()
                 problems = self._failed_conditions(world, ga, state, number, text)
-                troubles = apply(ga, state) if (not problems or self.keep_going) else []
-                problems += _numeric_findings(troubles, number, text, "effect")
+                if problems and not keep_going:
+                    findings.extend(problems)
+                    stopped = True
+                    break
+                troubles = apply(ga, state)
+                if troubles:
+                    problems += _numeric_findings(troubles, number, text, "effect")
                 findings.extend(problems)
-                if problems and not self.keep_going:
+                if problems and not keep_going:
                     stopped = True
                     break
             if stopped:
@@ -126,9 +139,9 @@ def _false_condition(world: World, f, fluents: dict, kind, who: str, **fields):
     extra: dict = {}
     if isinstance(f, Compare):
         left, right = value(f.left, fluents), value(f.right, fluents)
-        extra = {"left_value": _as_float(left), "right_value": _as_float(right)}
-        detail = (f"{cond} is false: the left side is {render.number(left)}, "
-                  f"the right side {render.number(right)}")
+        extra = {"left_value": float(left), "right_value": float(right)}
+        detail = (f"{cond}, but the left side is {render.number(left)} "
+                  f"and the right side {render.number(right)}")
     else:
         detail = f"{cond}, which does not hold"
     if kind is GoalUnmet:
@@ -143,7 +156,13 @@ def _numeric_findings(troubles: list, number: int | None, text: str | None, cont
     out: list = []
     where = f"{text}: " if text else "goal: "
     for exc in troubles:
-        if isinstance(exc, Undefined):
+        if isinstance(exc, EffectClash):
+            fl = render.ground_atom(exc.key)
+            out.append(EffectConflict(
+                step=number, step_text=text, fluent=fl, effects=exc.ops,
+                message=f"{where}changes {fl} by {' and '.join(exc.ops)} at once; only "
+                        f"increases and decreases of one fluent combine in a single step"))
+        elif isinstance(exc, Undefined):
             fl = render.ground_atom(exc.key)
             out.append(FluentUndefined(
                 step=number, step_text=text, fluent=fl, context=context,

@@ -32,6 +32,15 @@ class DivisionByZero(Exception):
         self.calc = calc
 
 
+class EffectClash(Exception):
+    """One step changes a fluent twice and the changes do not simply add up."""
+
+    def __init__(self, key: tuple, ops: list[str]) -> None:
+        super().__init__(key)
+        self.key = key
+        self.ops = ops
+
+
 @dataclass(slots=True)
 class State:
     atoms: set = field(default_factory=set)
@@ -113,6 +122,8 @@ def applicable(ga: GroundAction, state: State) -> bool:
     return all(holds(f, atoms, state.fluents) for f in ga.pre_other)
 
 
+_ADDITIVE = frozenset({"increase", "decrease"})
+
 _UPDATE = {
     "assign": lambda old, v: v,
     "increase": lambda old, v: old + v,
@@ -125,11 +136,11 @@ _UPDATE = {
 def apply(ga: GroundAction, state: State) -> list[Exception]:
     """Apply ``ga``'s effects to ``state`` in place, preconditions unchecked.
 
-    Returns the numeric troubles met (Undefined, DivisionByZero); an effect that
-    cannot be computed is skipped, the rest still happen.
+    Returns the numeric troubles met (Undefined, DivisionByZero, EffectClash); an
+    effect that cannot be computed is skipped, the rest still happen.
     """
     atoms = state.atoms
-    if ga.is_plain:
+    if ga.plain:
         atoms -= ga.dels
         atoms |= ga.adds
         return []
@@ -148,14 +159,23 @@ def apply(ga: GroundAction, state: State) -> list[Exception]:
                 adds |= c.adds
                 dels |= c.dels
                 numeric.extend(c.numeric)
+    ops: dict = {}
+    for op, key, _ in numeric:
+        ops.setdefault(key, []).append(op)
+    # Additive changes (increase, decrease) to one fluent combine; any other mix has no
+    # order-free meaning (PDDL2.1, Fox & Long 2003, treats it as ill-defined).
+    clashing = {k for k, o in ops.items() if len(o) > 1 and not _ADDITIVE.issuperset(o)}
+    troubles.extend(EffectClash(k, ops[k]) for k in clashing)
     updates: dict = {}
     for op, key, rhs in numeric:
+        if key in clashing:
+            continue
         try:
             v = value(rhs, fluents)
             if op == "assign":
                 new = v
             else:
-                # several effects on one fluent: each reads the old state, deltas add up
+                # several additive effects on one fluent: each reads the old state, deltas add up
                 if key in updates:
                     old = updates[key]
                 elif key in fluents:

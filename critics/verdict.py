@@ -88,6 +88,12 @@ class DivisionByZero(_Finding):
     context: Literal["precondition", "effect", "goal"]
 
 
+class EffectConflict(_Finding):
+    code: Literal["effect-conflict"] = "effect-conflict"
+    fluent: str
+    effects: list[str]  # the operations that meet on the fluent, in the order written
+
+
 class GoalUnmet(_Finding):
     code: Literal["goal-unmet"] = "goal-unmet"
     condition: str
@@ -98,7 +104,7 @@ class GoalUnmet(_Finding):
 
 Finding = Annotated[
     Union[ActionUnknown, ArityMismatch, ObjectUnknown, ArgumentType, PreconditionFalse,
-          FluentUndefined, DivisionByZero, GoalUnmet],
+          FluentUndefined, DivisionByZero, EffectConflict, GoalUnmet],
     Field(discriminator="code"),
 ]
 

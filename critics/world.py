@@ -10,7 +10,8 @@ from __future__ import annotations
 import difflib
 
 from plansieve.critics.grounding import (
-    TRUE, GroundAction, Universe, conjuncts, exact, ground_action, ground_formula,
+    TRUE, GroundAction, Universe, compile_schema, conjuncts, exact, ground_action,
+    ground_formula,
 )
 from plansieve.critics.hints import HintIndex
 from plansieve.critics.model import Action, And, DurativeAction, Task, Timed, TimedEffect
@@ -46,7 +47,9 @@ class World:
         for name, da in task.domain.durative_actions.items():
             self._schemas[name] = _durative_halves(da)
         self._params = {name: halves[0].params for name, halves in self._schemas.items()}
-        self._cache: dict[tuple, tuple[GroundAction, ...] | list] = {}
+        self._templates = {id(h): compile_schema(h) for hs in self._schemas.values() for h in hs}
+        # (action, args) -> tuple of GroundActions, or the list of findings that stop the step
+        self.cache: dict[tuple, tuple[GroundAction, ...] | list] = {}
         goal = task.problem.goal
         self.goal = conjuncts(ground_formula(goal, {}, self.universe) if goal is not None else TRUE)
         self._init_fluents = {k: exact(v) for k, v in task.problem.init_fluents.items()}
@@ -54,21 +57,24 @@ class World:
     def initial_state(self) -> State:
         return State(set(self.task.problem.init), dict(self._init_fluents))
 
-    def resolve(self, step: PlanStep, number: int | None = None):
+    def resolve(self, step: PlanStep):
         """The ground action(s) a step names, or the findings that say why it names none.
 
         Returns a tuple of GroundActions (two for a durative action read
-        sequentially) or a list of findings. Cached per (action, args).
+        sequentially) or a list of findings without a step number (see ``located``).
+        Cached per (action, args) in ``cache``.
         """
         key = (step.action, step.args)
-        got = self._cache.get(key)
+        got = self.cache.get(key)
         if got is None:
-            got = self._resolve(step)
-            self._cache[key] = got
-        if isinstance(got, list) and number is not None:
-            text = step.call()
-            got = [f.model_copy(update={"step": number, "step_text": text}) for f in got]
+            got = self.cache[key] = self._resolve(step)
         return got
+
+    @staticmethod
+    def located(findings: list, number: int, step: PlanStep) -> list:
+        """Copies of cached step findings that name the step they are about."""
+        text = step.call()
+        return [f.model_copy(update={"step": number, "step_text": text}) for f in findings]
 
     def _resolve(self, step: PlanStep):
         halves = self._schemas.get(step.action)
@@ -84,8 +90,11 @@ class World:
             return [ArityMismatch(action=step.action, expected=len(params), given=len(step.args),
                                   message=f"{call}: '{step.action}' takes {len(params)} "
                                           f"argument(s), the step gives {len(step.args)}")]
-        problems = []
         u = self.universe
+        if all(arg in u.of_types_set(p.types) for p, arg in zip(params, step.args)):
+            return tuple(ground_action(h, step.args, u, self._templates[id(h)])
+                         for h in halves)
+        problems = []
         for i, (p, arg) in enumerate(zip(params, step.args), 1):
             if arg not in u.objects:
                 problems.append(ObjectUnknown(
@@ -99,6 +108,4 @@ class World:
                     message=f"{call}: argument {i} '{arg}' is of type {' or '.join(actual)}, "
                             f"but {p.name} of '{step.action}' must be "
                             f"{' or '.join(p.types)}"))
-        if problems:
-            return problems
-        return tuple(ground_action(h, step.args, u) for h in halves)
+        return problems

@@ -263,3 +263,22 @@ def test_same_task_object_reuses_its_compiled_form(keep_going):
     assert sim.world(t) is sim.world(t)
     again = sim.check(t, Plan.of("(pick-up a)"))
     assert first.findings == again.findings
+
+
+def test_conflicting_numeric_effects_are_a_finding():
+    # An assign and an increase of one fluent in one action have no order-free meaning; PDDL2.1
+    # (Fox & Long 2003) treats such effects as ill-defined (paraphrased from memory). The
+    # unified-planning oracle refuses such a domain too, so we report the step instead of
+    # picking an order.
+    domain = """(define (domain meter) (:requirements :numeric-fluents)
+      (:functions (level))
+      (:action reset-and-bump :parameters ()
+        :effect (and (assign (level) 1) (increase (level) 2)))
+      (:action bump-twice :parameters ()
+        :effect (and (increase (level) 1) (decrease (level) 3))))"""
+    t = task(domain, """(define (problem m) (:domain meter) (:init (= (level) 5))
+      (:goal (= (level) 3)))""")
+    v = run(t, "(reset-and-bump)")
+    assert v.codes() == ["effect-conflict"]
+    assert (v.findings[0].fluent, v.findings[0].effects) == ("(level)", ["assign", "increase"])
+    assert run(t, "(bump-twice)").passed  # 5 + 1 - 3 = 3: additive changes combine

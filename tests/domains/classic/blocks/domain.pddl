@@ -1,0 +1,46 @@
+; Blocks world, four-operator version (pick-up, put-down, stack, unstack).
+; Source: IPC-2000 (AIPS-2000 planning competition), typed STRIPS track.
+; Written from memory, not copied; names and layout follow the published form
+; as remembered. Used only as a test fixture.
+(define (domain BLOCKS)
+  (:requirements :strips :typing)
+  (:types block)
+  (:predicates (on ?x - block ?y - block)
+               (ontable ?x - block)
+               (clear ?x - block)
+               (handempty)
+               (holding ?x - block))
+
+  (:action pick-up
+    :parameters (?x - block)
+    :precondition (and (clear ?x) (ontable ?x) (handempty))
+    :effect (and (not (ontable ?x))
+                 (not (clear ?x))
+                 (not (handempty))
+                 (holding ?x)))
+
+  (:action put-down
+    :parameters (?x - block)
+    :precondition (holding ?x)
+    :effect (and (not (holding ?x))
+                 (clear ?x)
+                 (handempty)
+                 (ontable ?x)))
+
+  (:action stack
+    :parameters (?x - block ?y - block)
+    :precondition (and (holding ?x) (clear ?y))
+    :effect (and (not (holding ?x))
+                 (not (clear ?y))
+                 (clear ?x)
+                 (handempty)
+                 (on ?x ?y)))
+
+  (:action unstack
+    :parameters (?x - block ?y - block)
+    :precondition (and (on ?x ?y) (clear ?x) (handempty))
+    :effect (and (holding ?x)
+                 (clear ?y)
+                 (not (clear ?x))
+                 (not (handempty))
+                 (not (on ?x ?y)))))

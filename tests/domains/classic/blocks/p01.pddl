@@ -1,0 +1,12 @@
+; Invented instance for plansieve's tests (hand-designed, not from a benchmark set).
+(define (problem stack-three)
+  (:domain BLOCKS)
+  (:objects a b c - block)
+  (:init (handempty)
+         (ontable a)
+         (on c a)
+         (clear c)
+         (ontable b)
+         (clear b)
+  )
+  (:goal (and (on a b) (on b c))))

@@ -1,0 +1,11 @@
+; Invented instance for plansieve's tests (hand-designed, not from a benchmark set).
+(define (problem carry-two)
+  (:domain gripper-strips)
+  (:objects hall-north hall-south left right ball1 ball2)
+  (:init (room hall-north) (room hall-south)
+         (gripper left) (gripper right) (free left) (free right)
+         (at-robby hall-north)
+         (ball ball1) (at ball1 hall-north)
+         (ball ball2) (at ball2 hall-north)
+  )
+  (:goal (and (at ball1 hall-south) (at ball2 hall-south))))

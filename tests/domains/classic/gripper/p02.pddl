@@ -1,0 +1,13 @@
+; Invented instance for plansieve's tests (hand-designed, not from a benchmark set).
+(define (problem swap-four)
+  (:domain gripper-strips)
+  (:objects hall-north hall-south left right ball1 ball2 ball3 ball4)
+  (:init (room hall-north) (room hall-south)
+         (gripper left) (gripper right) (free left) (free right)
+         (at-robby hall-north)
+         (ball ball1) (at ball1 hall-north)
+         (ball ball2) (at ball2 hall-north)
+         (ball ball3) (at ball3 hall-south)
+         (ball ball4) (at ball4 hall-south)
+  )
+  (:goal (and (at ball1 hall-south) (at ball2 hall-south) (at ball3 hall-north) (at ball4 hall-north))))
