@@ -37,8 +37,10 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(VPY) bench/run_all.py
 
+# The long runs: fuzzing at full size (about 15 minutes) and ten times the oracle comparison.
 fuzz: $(STAMP)
-	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -m slow tests
+	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -p no:cacheprovider -m slow tests
+	PLANSIEVE_ORACLE_PLANS=2200 $(VPY) -m pytest -q -p no:cacheprovider tests/test_oracle_differential.py
 
 clean:
 	rm -rf $(VENV) build dist *.egg-info

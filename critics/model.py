@@ -369,18 +369,22 @@ class Domain:
 
     def is_subtype(self, child: str, parent: str) -> bool:
         """True when ``child`` is ``parent`` or one of its descendants."""
-        if child == parent or parent == "object":
+        return is_subtype(self.types, child, parent)
+
+
+def is_subtype(parents: Mapping[str, tuple[str, ...]], child: str, parent: str) -> bool:
+    """True when ``child`` reaches ``parent`` through ``parents`` (type -> its parent types)."""
+    if child == parent or parent == "object":
+        return True
+    seen, todo = set(), [child]
+    while todo:
+        t = todo.pop()
+        if t == parent:
             return True
-        seen, todo = set(), [child]
-        while todo:
-            t = todo.pop()
-            if t == parent:
-                return True
-            if t in seen:
-                continue
+        if t not in seen:
             seen.add(t)
-            todo.extend(self.types.get(t, ()))
-        return False
+            todo.extend(parents.get(t, ()))
+    return False
 
 
 @dataclass(frozen=True, slots=True)

@@ -18,6 +18,7 @@ from plansieve.critics.model import (
     Add, And, Arith, Assign, Atom, Compare, Delete, Domain, DurationRef, DurativeAction,
     Equal, Exists, FluentRef, Forall, ForallEffect, Imply, Loc, Metric, Not, Number, Or, Param,
     Preference, Signature, Timed, TimedEffect, TimedLiteral, Trajectory, Truth, ViolatedRef, When,
+    is_subtype,
 )
 from plansieve.critics.transform import DomainDraft, InitFact, InitValue, ProblemDraft
 
@@ -129,17 +130,7 @@ class TypeTable:
         return t in self.parents
 
     def is_subtype(self, child: str, parent: str) -> bool:
-        if child == parent or parent == "object":
-            return True
-        seen, todo = set(), [child]
-        while todo:
-            t = todo.pop()
-            if t == parent:
-                return True
-            if t not in seen:
-                seen.add(t)
-                todo.extend(self.parents.get(t, ()))
-        return False
+        return is_subtype(self.parents, child, parent)
 
     def fits(self, have: tuple[str, ...], want: tuple[str, ...]) -> bool:
         """True when every type in ``have`` is a subtype of some type in ``want``."""
