@@ -4,6 +4,10 @@ Every step's precondition is read in the state before it; a failing step ends
 the run, or — with ``keep_going`` — is applied anyway so that one pass reports
 every problem it can find. Steps that name no real action are skipped in that
 mode. The goal is checked in the final state, one finding per unmet part.
+
+Steps run in the order written. A durative action is read sequentially, its start
+half then its end half; durations, overlap and timed literals are for a temporal
+critic, so for a timed plan a pass here means only that the sequential reading holds.
 """
 
 from __future__ import annotations

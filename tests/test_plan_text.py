@@ -325,15 +325,20 @@ def test_load_plan_strips_byte_order_mark_and_reports_lines(tmp_path):
     assert load_plan(path).steps == (PlanStep("a"),)
 
 
-@pytest.mark.skipif(not hasattr(os, "geteuid") or os.geteuid() == 0,
-                    reason="file permissions do not bind the superuser")
-def test_load_plan_unreadable_file(tmp_path):
+def test_load_plan_unreadable_file(tmp_path, monkeypatch):
+    # The superuser ignores file modes (and CI runs as root), so the refusal is staged.
     path = tmp_path / "locked.plan"
     path.write_text("(a)\n")
-    path.chmod(0)
+
+    def refuse(*args, **kwargs):
+        raise PermissionError(13, "Permission denied")
+
+    monkeypatch.setattr("builtins.open", refuse)
     with pytest.raises(PlanReadError) as info:
         load_plan(path)
+    monkeypatch.undo()
     assert "permission denied" in info.value.first.message
+    assert info.value.first.file == str(path)
 
 
 # --- round trips (property tests) -------------------------------------------------------
