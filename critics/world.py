@@ -53,6 +53,10 @@ class World:
         goal = task.problem.goal
         self.goal = conjuncts(ground_formula(goal, {}, self.universe) if goal is not None else TRUE)
         self._init_fluents = {k: exact(v) for k, v in task.problem.init_fluents.items()}
+        # Under :action-costs, (total-cost) is only increased and read by the metric, so a
+        # problem that leaves it out starts it at 0 rather than failing the first step.
+        if "total-cost" in task.domain.functions:
+            self._init_fluents.setdefault(("total-cost",), 0)
 
     def initial_state(self) -> State:
         return State(set(self.task.problem.init), dict(self._init_fluents))

@@ -282,3 +282,18 @@ def test_conflicting_numeric_effects_are_a_finding():
     assert v.codes() == ["effect-conflict"]
     assert (v.findings[0].fluent, v.findings[0].effects) == ("(level)", ["assign", "increase"])
     assert run(t, "(bump-twice)").passed  # 5 + 1 - 3 = 3: additive changes combine
+
+
+def test_total_cost_starts_at_zero_when_the_problem_leaves_it_out():
+    # :action-costs (IPC-2008 rules, from memory): total-cost appears only in increase
+    # effects and the metric, so its start value cannot change validity; the
+    # unified-planning oracle likewise keeps it out of the state. Any other fluent left
+    # out is still undefined.
+    domain = """(define (domain fees) (:requirements :action-costs)
+      (:predicates (paid))
+      (:functions (total-cost) - number (balance))
+      (:action pay :parameters () :effect (and (paid) (increase (total-cost) 4)))
+      (:action top-up :parameters () :effect (increase (balance) 1)))"""
+    t = task(domain, "(define (problem f) (:domain fees) (:init) (:goal (paid)))")
+    assert run(t, "(pay)").passed
+    assert run(t, "(top-up)", "(pay)").codes() == ["fluent-undefined"]
