@@ -297,3 +297,18 @@ def test_total_cost_starts_at_zero_when_the_problem_leaves_it_out():
     t = task(domain, "(define (problem f) (:domain fees) (:init) (:goal (paid)))")
     assert run(t, "(pay)").passed
     assert run(t, "(top-up)", "(pay)").codes() == ["fluent-undefined"]
+
+
+def test_scale_effects_multiply_and_divide():
+    # Source: PDDL2.1 (Fox & Long 2003), section 5: scale-up multiplies and scale-down divides
+    # the fluent by the value, read in the state before the step. Hand-worked: 6 * 3 / 4 = 4.5.
+    # (The unified-planning oracle cannot read these effects, so this check stands alone.)
+    domain = """(define (domain mixer) (:requirements :numeric-fluents)
+      (:functions (volume) (factor))
+      (:action triple :parameters () :effect (scale-up (volume) (factor)))
+      (:action quarter :parameters () :effect (scale-down (volume) 4)))"""
+    t = task(domain, """(define (problem m) (:domain mixer)
+      (:init (= (volume) 6) (= (factor) 3)) (:goal (= (volume) 4.5)))""")
+    assert run(t, "(triple)", "(quarter)").passed
+    assert run(t, "(quarter)", "(triple)").passed  # the same product in the other order
+    assert not run(t, "(triple)").passed
