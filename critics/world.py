@@ -98,7 +98,7 @@ class World:
         if all(arg in u.of_types_set(p.types) for p, arg in zip(params, step.args)):
             return tuple(ground_action(h, step.args, u, self._templates[id(h)])
                          for h in halves)
-        problems = []
+        problems = []  # from here on the step is wrong; explain each argument
         for i, (p, arg) in enumerate(zip(params, step.args), 1):
             if arg not in u.objects:
                 problems.append(ObjectUnknown(
