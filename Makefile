@@ -5,7 +5,7 @@ VPY     := $(VENV)/bin/python
 STAMP   := $(VENV)/.installed-test
 DEMO    := examples/harbour
 
-.PHONY: demo test bench fuzz wheel clean
+.PHONY: demo test bench fuzz schema clean
 
 $(VPY):
 	$(PY) -m venv $(VENV)
@@ -41,6 +41,10 @@ bench: $(STAMP)
 fuzz: $(STAMP)
 	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -p no:cacheprovider -m slow tests
 	PLANSIEVE_ORACLE_PLANS=2200 $(VPY) -m pytest -q -p no:cacheprovider tests/test_oracle_differential.py
+
+# Rewrite docs/schema/ from the models (tests/test_schema.py says when it is stale).
+schema: $(VENV)/.installed
+	$(VPY) -c "from plansieve.report import SCHEMA_PATH, schema_text; SCHEMA_PATH.parent.mkdir(parents=True, exist_ok=True); SCHEMA_PATH.write_text(schema_text())"
 
 clean:
 	rm -rf $(VENV) build dist *.egg-info

@@ -6,7 +6,6 @@ Exit codes: 0 the plan is valid, 1 it is not, 2 unreadable input or a usage erro
 from __future__ import annotations
 
 import argparse
-import json
 import os
 import sys
 
@@ -62,7 +61,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
     from plansieve.critics.check import check
     from plansieve.critics.pddl import load_task
     from plansieve.critics.plan_text import load_plan, read_plan_auto
-    from plansieve.report import render_check
+    from plansieve.report import CheckDocument, NamedFile, PlanFile, render_check
 
     task = load_task(args.domain, args.problem)
     if args.plan == "-":
@@ -71,14 +70,12 @@ def _cmd_check(args: argparse.Namespace) -> int:
         plan = load_plan(args.plan)
     result = check(task, plan, keep_going=args.keep_going)
     if args.json:
-        doc = {
-            "format": "plansieve.check/1",
-            "domain": {"file": args.domain, "name": task.domain.name},
-            "problem": {"file": args.problem, "name": task.problem.name},
-            "plan": {"file": args.plan, "steps": len(plan)},
-            **result.model_dump(mode="json"),
-        }
-        print(json.dumps(doc, indent=2))
+        doc = CheckDocument(
+            domain=NamedFile(file=args.domain, name=task.domain.name),
+            problem=NamedFile(file=args.problem, name=task.problem.name),
+            plan=PlanFile(file=args.plan, steps=len(plan)),
+            passed=result.passed, verdicts=result.verdicts)
+        print(doc.model_dump_json(indent=2))
     else:
         sys.stdout.write(render_check(
             result, plan,

@@ -1,9 +1,48 @@
-"""The human-readable report of ``plansieve check``: findings grouped by step."""
+"""What ``plansieve check`` prints: a report for people, a versioned document for machines."""
 
 from __future__ import annotations
 
+import json
+from pathlib import Path
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict
+
 from plansieve.critics.check import CheckResult
 from plansieve.critics.plan import Plan
+from plansieve.critics.verdict import Verdict
+
+SCHEMA_PATH = Path(__file__).resolve().parents[1] / "docs" / "schema" / "check.schema.json"
+
+
+class NamedFile(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+    file: str
+    name: str
+
+
+class PlanFile(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+    file: str
+    steps: int
+
+
+class CheckDocument(BaseModel):
+    """The ``--json`` output of ``plansieve check``; ``format`` changes when fields do."""
+
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+    format: Literal["plansieve.check/1"] = "plansieve.check/1"
+    domain: NamedFile
+    problem: NamedFile
+    plan: PlanFile
+    passed: bool
+    verdicts: list[Verdict]
+
+
+def schema_text() -> str:
+    """The JSON Schema of CheckDocument, as kept in docs/schema/ (``make schema`` writes it)."""
+    return json.dumps(CheckDocument.model_json_schema(), indent=2, sort_keys=True) + "\n"
 
 
 def _body(message: str, step_text: str | None) -> str:
