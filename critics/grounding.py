@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from fractions import Fraction
+from operator import itemgetter
 
 from plansieve.critics.model import (
     Action, Add, And, Arith, Assign, Atom, Compare, Delete, DurationRef, Equal, Exists,
@@ -50,7 +51,7 @@ class Conditional:
     numeric: tuple  # ((op, fluent key, ground expr), ...)
 
 
-@dataclass(frozen=True, slots=True)
+@dataclass(slots=True, eq=False)  # not frozen: built once per distinct step, read-only after
 class GroundAction:
     name: str
     args: tuple[str, ...]
@@ -254,9 +255,9 @@ def _ground_effects(effects, sub, universe, adds, dels, numeric, conditional):
 @dataclass(frozen=True, slots=True)
 class Template:
     """A schema compiled once: its literal preconditions and add/delete effects as
-    ``(predicate, spec)`` pairs, where spec is a tuple of parameter indexes, or — when
-    the literal names a constant — a one-item list holding a tuple of indexes and
-    constants, so grounding them is index lookups. What is not a plain literal
+    ``(predicate, how, pick)`` triples that say how to take the atom's arguments from
+    the step's (no arguments, one parameter index, an itemgetter over several, or a
+    tuple mixing indexes and constants), so grounding them is index lookups. What is not a plain literal
     (numeric, quantified, disjunctive, conditional, numeric effects) stays lifted in
     ``other_pre`` and ``other_effects`` and goes through the general grounding."""
 
@@ -290,9 +291,13 @@ def compile_schema(schema: Action) -> Template:
                 out.append(index[a])
             else:
                 out.append(a)
-        if all(isinstance(i, int) for i in out):
-            return (atom.predicate, tuple(out))
-        return (atom.predicate, [tuple(out)])  # names a constant: the slower path
+        if not all(isinstance(i, int) for i in out):
+            return (atom.predicate, _MIXED, tuple(out))
+        if len(out) == 0:
+            return (atom.predicate, _NONE, None)
+        if len(out) == 1:
+            return (atom.predicate, _ONE, out[0])
+        return (atom.predicate, _MANY, itemgetter(*out))
 
     pos, neg, other_pre = [], [], []
     for c in _flat_conjuncts(schema.precondition):
@@ -314,11 +319,21 @@ def compile_schema(schema: Action) -> Template:
                     tuple(other_effects))
 
 
-def _instances(pairs: tuple, args: tuple[str, ...]) -> set:
-    get = args.__getitem__
-    return {(pred, *map(get, spec)) if spec.__class__ is tuple else
-            (pred, *[args[i] if i.__class__ is int else i for i in spec[0]])
-            for pred, spec in pairs}
+_NONE, _ONE, _MANY, _MIXED = range(4)
+
+
+def _instances(pairs: tuple, args: tuple[str, ...]) -> frozenset:
+    out = []
+    for pred, how, pick in pairs:
+        if how == _ONE:
+            out.append((pred, args[pick]))
+        elif how == _MANY:
+            out.append((pred, *pick(args)))
+        elif how == _NONE:
+            out.append((pred,))
+        else:  # _MIXED: parameters and constants
+            out.append((pred, *[args[i] if i.__class__ is int else i for i in pick]))
+    return frozenset(out)
 
 
 def ground_action(schema: Action, args: tuple[str, ...], universe: Universe,
@@ -326,22 +341,24 @@ def ground_action(schema: Action, args: tuple[str, ...], universe: Universe,
     """Compile one instantiation of ``schema``; arity and types are checked by the caller."""
     t = template or compile_schema(schema)
     pos, neg = _instances(t.pos, args), _instances(t.neg, args)
-    other: list = []
-    if t.other_pre:
-        sub = {p.name: a for p, a in zip(schema.params, args)}
-        for c in conjuncts(ground_formula(And(t.other_pre), sub, universe)):
-            if isinstance(c, Atom):
-                pos.add(c.key)
-            elif isinstance(c, Not) and isinstance(c.body, Atom):
-                neg.add(c.body.key)
-            else:
-                other.append(c)  # includes FALSE, which never holds
     adds, dels = _instances(t.adds, args), _instances(t.dels, args)
+    other: list = []
     numeric: list = []
     conditional: list = []
-    if t.other_effects:
+    if t.other_pre or t.other_effects:
         sub = {p.name: a for p, a in zip(schema.params, args)}
-        _ground_effects(t.other_effects, sub, universe, adds, dels, numeric, conditional)
-    return GroundAction(schema.name, args, schema, frozenset(pos), frozenset(neg), tuple(other),
-                        frozenset(adds), frozenset(dels), tuple(numeric), tuple(conditional),
-                        not (other or numeric or conditional))
+        more_pos, more_neg = set(), set()
+        for c in conjuncts(ground_formula(And(t.other_pre), sub, universe)):
+            if isinstance(c, Atom):
+                more_pos.add(c.key)
+            elif isinstance(c, Not) and isinstance(c.body, Atom):
+                more_neg.add(c.body.key)
+            else:
+                other.append(c)  # includes FALSE, which never holds
+        more_adds, more_dels = set(), set()
+        _ground_effects(t.other_effects, sub, universe, more_adds, more_dels, numeric,
+                        conditional)
+        pos, neg = pos | more_pos, neg | more_neg
+        adds, dels = adds | more_adds, dels | more_dels
+    return GroundAction(schema.name, args, schema, pos, neg, tuple(other), adds, dels,
+                        tuple(numeric), tuple(conditional), not (other or numeric or conditional))

@@ -19,6 +19,7 @@ from pathlib import Path
 
 from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedInput, UnexpectedToken
+from lark.lexer import PatternRE, TerminalDef
 
 from plansieve.critics.errors import (
     InputError, ModelError, PddlSyntaxError, Spot, UnsupportedRequirement,
@@ -47,6 +48,30 @@ def _parser() -> Lark:
     return Lark.open_from_package(
         "plansieve.critics", "pddl.lark", parser="lalr", lexer="contextual",
         start=_STARTS, transformer=PddlTransformer(), maybe_placeholders=False,
+    )
+
+
+def _word_by_word(terminal: TerminalDef) -> None:
+    """Switch off the fast-path terminals of the grammar (NAME_RUN, PLAIN_ATOM)."""
+    if terminal.name == "NAME_RUN":
+        terminal.pattern = PatternRE(r"[a-z][a-z0-9_\-]*")  # one name, as NAME
+    elif terminal.name == "PLAIN_ATOM":
+        terminal.pattern = PatternRE(r"\((?!)")  # matches nothing
+
+
+@functools.lru_cache(maxsize=1)
+def _word_parser() -> Lark:
+    """The same parser reading typed lists and atoms word by word.
+
+    Text the fast parser rejects is read again by this one, so a syntax error is
+    always found and described by the word-by-word rules, and text that only those
+    rules accept (the fast tokens look at the text, not at the parser's state) is
+    still read. Built on first use: valid files never need it.
+    """
+    return Lark.open_from_package(
+        "plansieve.critics", "pddl.lark", parser="lalr", lexer="contextual",
+        start=_STARTS, transformer=PddlTransformer(), maybe_placeholders=False,
+        edit_terminals=_word_by_word,
     )
 
 
@@ -155,6 +180,7 @@ _TERMINAL_WORDS = {
     "LPAR": "an opening '('",
     "RPAR": "a closing ')'",
     "NAME": "a name",
+    "NAME_RUN": "a name",
     "VARIABLE": "a variable like ?x",
     "NUMBER": "a number",
     "REQUIREMENT": "a requirement like :strips",
@@ -164,8 +190,10 @@ _TERMINAL_WORDS = {
     "$END": "the end of the file",
 }
 # Terminals that only restate another choice (a whole fact is also an opening
-# parenthesis) or that we do not advertise.
-_UNSAID = {"GROUND_ATOM", "GROUND_VALUE", "UNSUPPORTED_SECTION", "CONTINUOUS_TIME"}
+# parenthesis; PLAIN_ATOM never matches in the word-by-word parser) or that we
+# do not advertise. NAME_RUN is a name there.
+_UNSAID = {"GROUND_ATOM", "GROUND_VALUE", "PLAIN_ATOM", "UNSUPPORTED_SECTION",
+           "CONTINUOUS_TIME"}
 
 _SECTION_WORDS = {":requirements", ":types", ":constants", ":predicates", ":functions",
                   ":constraints", ":domain", ":objects", ":init", ":goal", ":metric"}
@@ -173,13 +201,13 @@ _ACTION_PARTS = {":parameters", ":precondition", ":effect", ":duration", ":condi
 
 
 def _expected_words(names: Iterable[str]) -> str:
-    parser = _parser()
-    first, keywords, last = [], [], []
+    parser = _word_parser()
+    first, keywords, last = [], [], set()
     for n in set(names) - _UNSAID:
         if n in ("LPAR", "RPAR"):
             first.append(_TERMINAL_WORDS[n])
         elif n in _TERMINAL_WORDS:
-            last.append(_TERMINAL_WORDS[n])
+            last.add(_TERMINAL_WORDS[n])
         else:
             try:
                 pattern = parser.get_terminal(n).pattern
@@ -272,9 +300,31 @@ def _syntax_error(e: UnexpectedInput, file: str, text: str) -> PddlSyntaxError:
 # grounding, simulation) can run out of Python stack. Real PDDL stays far below it.
 MAX_NESTING = 200
 _PARENS = re.compile(r";[^\n]*|[()]")
+_COMMENTS = re.compile(rb";[^\n]*")
+_ALL_BUT_PARENS = bytes(c for c in range(256) if c not in b"()")
+
+
+def _depth_bound(text: str) -> int:
+    """An upper bound of the nesting depth of ``text`` (comments skipped), at C speed.
+
+    Each pass removes every ``()`` that is adjacent, so a parenthesis lies inside at
+    most as many matched pairs as there were passes, plus the unmatched ``(`` left.
+    The passes stop once the bound is above ``MAX_NESTING``.
+    """
+    data = text.encode("utf-8", "surrogatepass")
+    if b";" in data:
+        data = _COMMENTS.sub(b"", data)
+    data = data.translate(None, _ALL_BUT_PARENS)
+    passes = 0
+    while passes <= MAX_NESTING and b"()" in data:
+        data = data.replace(b"()", b"")
+        passes += 1
+    return passes + data.count(b"(")
 
 
 def _check_nesting(text: str, file: str, field: str | None) -> None:
+    if _depth_bound(text) <= MAX_NESTING:
+        return
     depth = 0
     for m in _PARENS.finditer(text):
         c = m.group()
@@ -292,11 +342,19 @@ def _check_nesting(text: str, file: str, field: str | None) -> None:
 
 
 def _parse(text: str, start: str, file: str, field: str | None = None):
-    """Run the parser; every failure becomes one of our errors."""
+    """Run the parser; every failure becomes one of our errors.
+
+    The fast parser reads most files; what it rejects is read again word by word
+    (``_word_parser``), which gives the result or the error to report.
+    """
     if text.count("(") > MAX_NESTING:
         _check_nesting(text, file, field)
+    lowered = _lower(text)
     try:
-        return _parser().parse(_lower(text), start=start)
+        try:
+            return _parser().parse(lowered, start=start)
+        except UnexpectedInput:
+            return _word_parser().parse(lowered, start=start)
     except UnexpectedInput as e:
         err = _syntax_error(e, file, text)
         if field is not None:

@@ -220,7 +220,15 @@ class BodyChecker:
                      f"{f' ({shown})' if shown else ''}, but {len(args)} "
                      f"{'is' if len(args) == 1 else 'are'} given", loc, 0)
             return
+        names, fits = self.names, self.types.fits
         for i, (a, p) in enumerate(zip(args, sig.params)):
+            # The common case, a bound variable or a declared name that fits, needs
+            # no message; anything else goes through term() to be reported.
+            if a.startswith("?"):
+                if a in scope:
+                    continue
+            elif (have := names.get(a)) is not None and fits(have, p.types):
+                continue
             self.term(a, scope, p.types, loc, i + 1,
                       f"argument {i + 1} of '{sig.name}' ({p.name})")
 
@@ -482,13 +490,19 @@ class ProblemChecker:
         # Fast path for initial facts: per predicate (function), per argument, the set
         # of names that fit there; computed on first use.
         self._fit_sets: dict[tuple[str, ...], frozenset[str]] = {}
+        self._by_types: dict[tuple[str, ...], list[str]] | None = None
         self._slots: dict[tuple[str, bool], tuple[frozenset[str], ...] | None] = {}
 
     def _fitting(self, want: tuple[str, ...]) -> frozenset[str]:
         s = self._fit_sets.get(want)
         if s is None:
+            if self._by_types is None:  # names grouped by their types: few groups
+                self._by_types = {}
+                for n, t in self.names.items():
+                    self._by_types.setdefault(t, []).append(n)
             fits = self.types.fits
-            s = frozenset(n for n, t in self.names.items() if fits(t, want))
+            s = frozenset(n for t, group in self._by_types.items() if fits(t, want)
+                          for n in group)
             self._fit_sets[want] = s
         return s
 
@@ -515,6 +529,8 @@ class ProblemChecker:
         """Repeated objects, unknown types, clashes with domain constants (with index)."""
         out: list[tuple[int, Issue]] = []
         seen: dict[str, Loc | None] = {}
+        constants = self.domain.constants
+        known: set[tuple[str, ...]] = set()  # type lists already found declared
         for i, o in enumerate(self.object_list):
             if o.name in seen:
                 out.append((i, Issue(f"object '{o.name}' is declared twice"
@@ -522,13 +538,18 @@ class ProblemChecker:
                                      o.loc)))
             else:
                 seen[o.name] = o.loc
-            const = self.domain.constants.get(o.name)
+            const = constants.get(o.name)
             if const is not None and const != o.types:
                 out.append((i, Issue(f"object '{o.name}' repeats a domain constant with "
                                      f"another type ({_types_text(const)}); expected a new name",
                                      o.loc)))
+            if o.types in known:
+                continue
             self.body.check_types(o.types, o.loc, f"object '{o.name}'")
-            out.extend((i, x) for x in self._take())
+            if self.body.issues:
+                out.extend((i, x) for x in self._take())
+            else:
+                known.add(o.types)
         return out
 
     def fact_issues(self, key: tuple, loc: Loc | None) -> list[Issue]:

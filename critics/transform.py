@@ -11,6 +11,7 @@ grammar cannot express (a ``- type`` with no names before it) stop the read.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 
 from lark import Token, Transformer
@@ -235,19 +236,38 @@ class _TimedParts:
 
 
 def _group_typed(items: list) -> list[Param]:
-    """Give each run of names the type that follows it; a trailing run is ``object``."""
+    """Give each run of names the type that follows it; a trailing run is ``object``.
+
+    ``items`` holds ``(name, line, column)`` triples and ``_DashType`` markers.
+    """
     out: list[Param] = []
-    pending: list[Token] = []
+    pending: list[tuple[str, int, int]] = []
     for it in items:
-        if isinstance(it, _DashType):
+        if type(it) is _DashType:
             if not pending:
                 raise ShapeError("a '- type' must follow the names it types, but no name "
                                  "comes before it", it.line, it.column)
-            out.extend(Param(str(t), it.types, Loc(t.line, t.column)) for t in pending)
+            types = it.types
+            out.extend([Param(n, types, Loc(line, column)) for n, line, column in pending])
             pending = []
         else:
             pending.append(it)
-    out.extend(Param(str(t), ("object",), Loc(t.line, t.column)) for t in pending)
+    out.extend([Param(n, ("object",), Loc(line, column)) for n, line, column in pending])
+    return out
+
+
+_WORD = re.compile(r"[^ \t\r]+")
+
+
+def _run_names(tok: Token) -> list[tuple[str, int, int]]:
+    """The names of a NAME_RUN token (names with only blanks between), each with its place."""
+    out = []
+    line, base = tok.line, tok.column  # where the current line's part of the token starts
+    for k, text in enumerate(tok.split("\n")):
+        if k:
+            line, base = line + 1, 1
+        for m in _WORD.finditer(text):
+            out.append((m.group(), line, base + m.start()))
     return out
 
 
@@ -261,6 +281,14 @@ def _split_by_time(timed: list[TimedEffect]) -> dict[str, list[Effect]]:
     for te in timed:
         groups.setdefault(te.when, []).append(te.effect)
     return groups
+
+
+def _plain_atom(tok: Token) -> Atom:
+    """An atom read as one PLAIN_ATOM token (leading blanks included)."""
+    start = tok.index("(")
+    line, column = _offset_position(tok, start) if start else (tok.line, tok.column)
+    words = tok[start + 1:-1].split()
+    return Atom(words[0], tuple(words[1:]), Loc(line, column))
 
 
 def _ground(tok: Token) -> InitFact | InitValue:
@@ -301,12 +329,19 @@ class PddlTransformer(Transformer):
         return _DashType(types, tok.line, tok.column)
 
     def name_items(self, c):
-        if len(c) == 2:
-            c[0].append(c[1])
-            return c[0]
-        return c
+        items = c[0] if len(c) == 2 else []
+        it = c[-1]
+        if type(it) is Token:  # NAME_RUN
+            items.extend(_run_names(it))
+        else:
+            items.append(it)
+        return items
 
-    variable_items = name_items
+    def variable_items(self, c):
+        items = c[0] if len(c) == 2 else []
+        it = c[-1]
+        items.append((str(it), it.line, it.column) if type(it) is Token else it)
+        return items
 
     def init_items(self, c):
         item = c[-1]
@@ -454,6 +489,9 @@ class PddlTransformer(Transformer):
     def atom(self, c):
         return Atom(str(c[1]), tuple(str(t) for t in c[2:]), _loc(c[0]))
 
+    def plain_atom(self, c):
+        return _plain_atom(c[0])
+
     def and_f(self, c):
         return And(tuple(c[1:]), _loc(c[0]))
 
@@ -515,6 +553,10 @@ class PddlTransformer(Transformer):
     def add_e(self, c):
         loc = _loc(c[0])
         return [Add(Atom(str(c[1]), tuple(str(t) for t in c[2:]), loc), loc)]
+
+    def plain_add(self, c):
+        atom = _plain_atom(c[0])
+        return [Add(atom, atom.loc)]
 
     def not_e(self, c):
         add = c[1][0]
@@ -652,16 +694,6 @@ class PddlTransformer(Transformer):
     def init_fluent(self, c):
         key, hl, hc = c[1]
         return InitValue(key, _number(c[2]), c[0].line, c[0].column, hl, hc)
-
-    def ground_value(self, c):
-        tok = c[0]
-        start = tok.index("(")
-        line, column = _offset_position(tok, start) if start else (tok.line, tok.column)
-        i = tok.index("(", start + 1)
-        j = tok.index(")", i)
-        hl, hc = _offset_position(tok, i)
-        return InitValue(tuple(tok[i + 1:j].split()), float(tok[j + 1:-1]),
-                         line, column, hl, hc)
 
     def init_not(self, c):
         fact = c[1]

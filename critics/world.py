@@ -47,6 +47,9 @@ class World:
         for name, da in task.domain.durative_actions.items():
             self._schemas[name] = _durative_halves(da)
         self._params = {name: halves[0].params for name, halves in self._schemas.items()}
+        # per action, the objects each parameter admits (for the quick type check)
+        self._admits = {name: tuple(self.universe.of_types_set(p.types) for p in params)
+                        for name, params in self._params.items()}
         self._templates = {id(h): compile_schema(h) for hs in self._schemas.values() for h in hs}
         # (action, args) -> tuple of GroundActions, or the list of findings that stop the step
         self.cache: dict[tuple, tuple[GroundAction, ...] | list] = {}
@@ -95,9 +98,9 @@ class World:
                                   message=f"{call}: '{step.action}' takes {len(params)} "
                                           f"argument(s), the step gives {len(step.args)}")]
         u = self.universe
-        if all(arg in u.of_types_set(p.types) for p, arg in zip(params, step.args)):
-            return tuple(ground_action(h, step.args, u, self._templates[id(h)])
-                         for h in halves)
+        if all(arg in ok for ok, arg in zip(self._admits[step.action], step.args)):
+            return tuple([ground_action(h, step.args, u, self._templates[id(h)])
+                          for h in halves])
         problems = []  # from here on the step is wrong; explain each argument
         for i, (p, arg) in enumerate(zip(params, step.args), 1):
             if arg not in u.objects:

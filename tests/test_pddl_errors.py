@@ -503,3 +503,20 @@ def test_build_problem_rejects_wrong_argument_shapes():
         build_problem(trams(), name="p", objects={"t1": 7}, init=[], goal=42)
     assert [(s.field, s.message.split(";")[0]) for s in e.value.spots] == [
         ("objects[t1]", "7 is not a type"), ("goal", "42 is not a formula")]
+
+
+def test_not_with_a_bare_name_in_a_timed_literal_is_a_syntax_error():
+    # PDDL 2.2 (Edelkamp & Hoffmann 2004) timed initial literals: the body is a literal,
+    # so a negation wraps an atom, (not (p)). `(not p)` must not be read as a fact named "not".
+    from plansieve.critics.errors import PddlSyntaxError
+    from plansieve.critics.pddl import parse_domain, parse_problem
+
+    d = parse_domain("(define (domain x) (:requirements :timed-initial-literals) "
+                     "(:predicates (p) (nota)))")
+    with pytest.raises(PddlSyntaxError) as err:
+        parse_problem("(define (problem y) (:domain x)\n(:init (at 5 (not p)) (nota))\n"
+                      "(:goal (p)))", d, "til.pddl")
+    assert (err.value.first.line, err.value.first.column) == (2, 19)
+    ok = parse_problem("(define (problem y) (:domain x) (:init (at 5 (not (p))) (nota)) "
+                       "(:goal (p)))", d)
+    assert ok.init == {("nota",)} and ok.timed_literals[0].time == 5

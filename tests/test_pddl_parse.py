@@ -15,8 +15,11 @@ the island of Vell, a ferry line, a glasshouse) unless a comment says otherwise.
 
 from __future__ import annotations
 
+import dataclasses
 import importlib.util
 import math
+import random
+import re
 from pathlib import Path
 
 import pytest
@@ -545,6 +548,152 @@ def test_whole_fact_tokens_and_token_by_token_facts_agree():
             parse_problem(text, d)
         assert [(s.line, s.column) for s in e.value.spots] == where
         assert e.value.first.message.startswith("'zz' is not a declared object or constant")
+
+
+# ---------------------------------------------------------------------------
+# Fast paths: a run of names, or a whole plain atom, read as one token. The grammar
+# also has a word-by-word reading (pddl._word_parser, used for whatever the fast one
+# rejects); both must give the same drafts, locations included.
+
+
+def _with_locs(x):
+    """A draft or model node as nested tuples, locations included (== ignores them)."""
+    if isinstance(x, (list, tuple)):
+        return tuple(_with_locs(y) for y in x)
+    if dataclasses.is_dataclass(x):
+        names = [f.name for f in dataclasses.fields(x)]
+    else:
+        names = getattr(type(x), "__slots__", None)
+        if names is None:
+            return x
+    return (type(x).__name__,) + tuple(_with_locs(getattr(x, n)) for n in names)
+
+
+def _fast_and_word_by_word(text: str, start: str):
+    from plansieve.critics.pddl import _lower, _parser, _word_parser
+    low = _lower(text)
+    return (_with_locs(_parser().parse(low, start=start)),
+            _with_locs(_word_parser().parse(low, start=start)))
+
+
+def _layouts(text: str) -> list[str]:
+    """The same text with CRLF line ends, with tabs, and with comments between words."""
+    return [text, text.replace("\n", "\r\n"), text.replace(" ", "\t"),
+            text.replace(" ", " ; note (x)\n   "), text.replace(" ", "\t;\r\n ")]
+
+
+# `at`, `start`, `end`, `either`, `over`, `all`, `when` are keywords only in their
+# own places and names elsewhere (PDDL2.1 sec. 8 for at/start/end/over/all; PDDL 1.2
+# manual sec. 4 for either; sec. 7 for when); `-` is the type marker of typed lists
+# (PDDL 1.2 manual sec. 4) and may also occur inside a name.
+STOPS = """(define (domain stops)
+  (:requirements :typing :durative-actions :conditional-effects :negative-preconditions)
+  (:types stop depot - place at start - stop)
+  (:constants end either - stop a-b -place)
+  (:predicates (at ?s - place) (link ?a ?b - place) (when ?s - place) (over) (all ?x))
+  (:action hop :parameters (?a ?b - place)
+    :precondition (and (at ?a) (link ?a ?b) (when end) (over) (not (all ?b)) ())
+    :effect (and (not (at ?a)) (at ?b) (when (at end) (all either))
+                 (forall (?c - stop) (when (link ?b ?c) (link ?c ?b)))))
+  (:durative-action glide :parameters (?a - stop)
+    :duration (= ?duration 2)
+    :condition (and (at start (at ?a)) (over all (link ?a either)))
+    :effect (and (at start (not (at ?a))) (at end (at end)))))"""
+
+STOPS_P = """(define (problem rounds) (:domain stops)
+  (:objects s1 s2 depot-1 - depot over all - start b-c x
+            y -stop)
+  (:init (at s1) (link s1 depot-1) (when s2))
+  (:goal (and (at depot-1) (link s1 end) (not (over)) (all either) (link either a-b))))"""
+
+
+def test_name_runs_and_plain_atoms_read_as_word_by_word():
+    for text in _layouts(STOPS):
+        fast, slow = _fast_and_word_by_word(text, "domain")
+        assert fast == slow
+    for text in _layouts(STOPS_P):
+        fast, slow = _fast_and_word_by_word(text, "problem")
+        assert fast == slow
+    d = parse_domain(STOPS)
+    assert all(parse_domain(t) == d for t in _layouts(STOPS))
+    assert d.constants == {"end": ("stop",), "either": ("stop",), "a-b": ("place",)}
+    assert d.actions["hop"].effects[2] == When(A("at", "end"), (Add(A("all", "either")),))
+    p = parse_problem(STOPS_P, d)
+    assert all(parse_problem(t, d) == p for t in _layouts(STOPS_P))
+    assert p.objects == {"s1": ("depot",), "s2": ("depot",), "depot-1": ("depot",),
+                         "over": ("start",), "all": ("start",), "b-c": ("stop",),
+                         "x": ("stop",), "y": ("stop",)}
+    assert p.goal == And((A("at", "depot-1"), A("link", "s1", "end"), Not(A("over")),
+                          A("all", "either"), A("link", "either", "a-b")))
+
+
+def test_fast_path_tokens_cover_plain_text_only():
+    from plansieve.critics.pddl import _parser
+
+    def whole(terminal: str, text: str) -> bool:
+        return re.fullmatch(_parser().get_terminal(terminal).pattern.to_regexp(), text) is not None
+
+    for text in ("(at start end)", "\r\n\t( either ?x a-b )", "(over)", "(all\nall)"):
+        assert whole("PLAIN_ATOM", text)
+    # a keyword that opens a formula or an effect, a comment, a number: word by word
+    for text in ("(and)", "(not p)", "(when p)", "(forall x)", "(increase f)", "(p ;c\n a)",
+                 "(p 1)", "(p (q))", "(= a b)", "(p\fa)"):
+        assert not whole("PLAIN_ATOM", text)
+    for text in ("at start end either", "a-b\r\n\tc"):
+        assert whole("NAME_RUN", text)
+    for text in ("a - t", "a ;c", "?x ?y"):
+        assert not whole("NAME_RUN", text)
+
+
+def test_fast_path_error_places_are_word_by_word_places():
+    from plansieve.critics.errors import ModelError, PddlSyntaxError
+    d = parse_domain(STOPS)
+    text = ("(define (problem p) (:domain stops)\n"
+            "  (:objects s1 s2\tdepot-1 - depot\n"
+            "\tzz1 zz2 - nowhere)\n"
+            "  (:init (at s1))\n"
+            "  (:goal (and (at depot-1) (link s1 ;c\n zz3) (link\teither end))))\n")
+    where = [(3, 2, "type 'nowhere' of object 'zz1' is not declared"),
+             (3, 6, "type 'nowhere' of object 'zz2' is not declared"),
+             (6, 2, "'zz3' is not a declared object or constant")]
+    for t in (text, text.replace("\n", "\r\n"), text.replace("zz1 zz2", "zz1 ;;\n\tzz2")):
+        with pytest.raises(ModelError) as e:
+            parse_problem(t, d)
+        got = [(s.line, s.column, s.message) for s in e.value.spots]
+        if "zz1 ;;" in t:  # zz2 moved to the next line, after a tab
+            where_t = [where[0], (4, 2, where[1][2]), (7, 2, where[2][2])]
+        else:
+            where_t = where
+        assert [(line, col) for line, col, _ in got] == [(line, col) for line, col, _ in where_t]
+        assert all(m.startswith(w) for (_, _, m), (_, _, w) in zip(got, where_t))
+    # A whole atom where the rules want a timed condition: the error is the word-by-word
+    # one, at the predicate name. Source: PDDL2.1 sec. 8 (every part of a durative
+    # condition is timed).
+    bad = STOPS.replace("(and (at start (at ?a))", "(and () (link ?a ?a) (at start (at ?a))")
+    with pytest.raises(PddlSyntaxError) as e:
+        parse_domain(bad)
+    s = e.value.first
+    assert (s.line, s.column) == (12, 25)
+    assert s.message.startswith("expected a closing ')', 'and', 'at', 'forall', 'over' or "
+                                "'preference', but found 'link'")
+
+
+def test_nesting_bound_is_never_below_the_depth():
+    from plansieve.critics.pddl import _PARENS, _depth_bound
+
+    def depth(text: str) -> int:
+        d = deepest = 0
+        for m in _PARENS.finditer(text):
+            d += 1 if m.group() == "(" else -1 if m.group() == ")" else 0
+            deepest = max(deepest, d)
+        return deepest
+
+    rng = random.Random(7)
+    for _ in range(3000):
+        text = "".join(rng.choice("((())) a;\n") for _ in range(rng.randint(0, 60)))
+        assert _depth_bound(text) >= depth(text)
+    assert _depth_bound("(" * 250 + ")" * 250) > 200
+    assert _depth_bound("()" * 500 + "; ((((\n") == 1
 
 
 def test_every_grammar_rule_has_a_transformer_callback():
