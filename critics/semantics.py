@@ -101,8 +101,16 @@ def _suggest(name: str, known: Iterable[str]) -> str:
     return f"; did you mean '{close[0]}'?" if close else ""
 
 
-def _first_line(loc: Loc | None) -> str:
-    return f" (first at line {loc.line})" if loc is not None else ""
+def _again(seen: dict[str, Loc | None], name: str, loc: Loc | None) -> str | None:
+    """Remember where ``name`` first appeared; on a repeat, words saying where that was.
+
+    None the first time; afterwards " (first at line N)", or "" when there is no place.
+    """
+    if name in seen:
+        first = seen[name]
+        return f" (first at line {first.line})" if first is not None else ""
+    seen[name] = loc
+    return None
 
 
 def _duplicate_sections(sections, kinds: Iterable[str]) -> list[Issue]:
@@ -111,11 +119,9 @@ def _duplicate_sections(sections, kinds: Iterable[str]) -> list[Issue]:
     for s in sections:
         if s.kind not in wanted:
             continue
-        if s.kind in seen:
-            out.append(Issue(f"a second (:{s.kind} ...) section{_first_line(seen[s.kind])}; "
+        if (first := _again(seen, s.kind, s.loc)) is not None:
+            out.append(Issue(f"a second (:{s.kind} ...) section{first}; "
                              f"expected each section once", s.loc, 0))
-        else:
-            seen[s.kind] = s.loc
     return out
 
 
@@ -177,11 +183,9 @@ class BodyChecker:
         inner = dict(scope)
         seen: dict[str, Loc | None] = {}
         for p in params:
-            if p.name in seen:
-                self.add(f"{kind} '{p.name}' is declared twice{_first_line(seen[p.name])}; "
+            if (first := _again(seen, p.name, p.loc)) is not None:
+                self.add(f"{kind} '{p.name}' is declared twice{first}; "
                          f"expected distinct names", p.loc)
-            else:
-                seen[p.name] = p.loc
             self.check_types(p.types, p.loc, f"{kind} '{p.name}'")
             inner[p.name] = p.types
         return inner
@@ -359,11 +363,9 @@ def check_domain(draft: DomainDraft, domain: Domain) -> list[Issue]:
                 issues.append(Issue("'object' is the root type and cannot have a parent; "
                                     "expected it alone or as a parent", t.loc))
             continue
-        if t.name in seen:
-            issues.append(Issue(f"type '{t.name}' is declared twice{_first_line(seen[t.name])}; "
+        if (first := _again(seen, t.name, t.loc)) is not None:
+            issues.append(Issue(f"type '{t.name}' is declared twice{first}; "
                                 f"expected each type once", t.loc))
-            continue
-        seen[t.name] = t.loc
     for name, parents in domain.types.items():
         if name != "object" and any(types.is_subtype(p, name) for p in parents):
             issues.append(Issue(f"type '{name}' is its own ancestor; expected the type "
@@ -373,22 +375,18 @@ def check_domain(draft: DomainDraft, domain: Domain) -> list[Issue]:
 
     seen = {}
     for c in draft.constants:
-        if c.name in seen:
-            body.add(f"constant '{c.name}' is declared twice{_first_line(seen[c.name])}; "
+        if (first := _again(seen, c.name, c.loc)) is not None:
+            body.add(f"constant '{c.name}' is declared twice{first}; "
                      f"expected each constant once", c.loc)
-        else:
-            seen[c.name] = c.loc
         body.check_types(c.types, c.loc, f"constant '{c.name}'")
 
     # Predicates and functions share one namespace.
     seen = {}
     for sig, kind in [(p, "predicate") for p in draft.predicates] + \
                      [(f, "function") for f in draft.functions]:
-        if sig.name in seen:
-            body.add(f"{kind} '{sig.name}' is declared twice{_first_line(seen[sig.name])}; "
+        if (first := _again(seen, sig.name, sig.loc)) is not None:
+            body.add(f"{kind} '{sig.name}' is declared twice{first}; "
                      f"expected each predicate and function name once", sig.loc, 0)
-        else:
-            seen[sig.name] = sig.loc
         body.params(sig.params, {}, "parameter")
         if kind == "function" and sig.result != "number":
             if sig.result == "object" or types.declared(sig.result or ""):
@@ -401,11 +399,9 @@ def check_domain(draft: DomainDraft, domain: Domain) -> list[Issue]:
 
     seen = {}
     for a in draft.actions:
-        if a.name in seen:
-            body.add(f"action '{a.name}' is declared twice{_first_line(seen[a.name])}; "
+        if (first := _again(seen, a.name, a.loc)) is not None:
+            body.add(f"action '{a.name}' is declared twice{first}; "
                      f"expected each action name once", a.loc, 1)
-        else:
-            seen[a.name] = a.loc
         body.where = f" in action '{a.name}'"
         scope = body.params(a.params, {}, "parameter")
         if isinstance(a, DurativeAction):
@@ -532,12 +528,9 @@ class ProblemChecker:
         constants = self.domain.constants
         known: set[tuple[str, ...]] = set()  # type lists already found declared
         for i, o in enumerate(self.object_list):
-            if o.name in seen:
-                out.append((i, Issue(f"object '{o.name}' is declared twice"
-                                     f"{_first_line(seen[o.name])}; expected each object once",
-                                     o.loc)))
-            else:
-                seen[o.name] = o.loc
+            if (first := _again(seen, o.name, o.loc)) is not None:
+                out.append((i, Issue(f"object '{o.name}' is declared twice{first}; "
+                                     f"expected each object once", o.loc)))
             const = constants.get(o.name)
             if const is not None and const != o.types:
                 out.append((i, Issue(f"object '{o.name}' repeats a domain constant with "

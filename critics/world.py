@@ -10,7 +10,7 @@ from __future__ import annotations
 import difflib
 
 from plansieve.critics.grounding import (
-    TRUE, GroundAction, Universe, compile_schema, conjuncts, exact, ground_action,
+    TRUE, GroundAction, Template, Universe, compile_schema, conjuncts, exact, ground_action,
     ground_formula,
 )
 from plansieve.critics.hints import HintIndex
@@ -42,15 +42,18 @@ class World:
         self.task = task
         self.universe = Universe(task)
         self.hints = HintIndex(task.domain)
-        self._schemas: dict[str, tuple[Action, ...]] = {
+        # action name -> its schema(s), each compiled once: one for an action, two halves
+        # for a durative action read sequentially
+        parts: dict[str, tuple[Action, ...]] = {
             name: (a,) for name, a in task.domain.actions.items()}
         for name, da in task.domain.durative_actions.items():
-            self._schemas[name] = _durative_halves(da)
-        self._params = {name: halves[0].params for name, halves in self._schemas.items()}
+            parts[name] = _durative_halves(da)
+        self._schemas: dict[str, tuple[tuple[Action, Template], ...]] = {
+            name: tuple((h, compile_schema(h)) for h in hs) for name, hs in parts.items()}
+        self._params = {name: hs[0].params for name, hs in parts.items()}
         # per action, the objects each parameter admits (for the quick type check)
         self._admits = {name: tuple(self.universe.of_types_set(p.types) for p in params)
                         for name, params in self._params.items()}
-        self._templates = {id(h): compile_schema(h) for hs in self._schemas.values() for h in hs}
         # (action, args) -> tuple of GroundActions, or the list of findings that stop the step
         self.cache: dict[tuple, tuple[GroundAction, ...] | list] = {}
         goal = task.problem.goal
@@ -99,8 +102,7 @@ class World:
                                           f"argument(s), the step gives {len(step.args)}")]
         u = self.universe
         if all(arg in ok for ok, arg in zip(self._admits[step.action], step.args)):
-            return tuple([ground_action(h, step.args, u, self._templates[id(h)])
-                          for h in halves])
+            return tuple([ground_action(h, step.args, u, t) for h, t in halves])
         problems = []  # from here on the step is wrong; explain each argument
         for i, (p, arg) in enumerate(zip(params, step.args), 1):
             if arg not in u.objects:

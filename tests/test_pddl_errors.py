@@ -34,15 +34,21 @@ def no_parser_internals(err: InputError) -> None:
 # ---------------------------------------------------------------------------
 # Syntax errors
 
-def syntax(text: str, problem_of=None) -> PddlSyntaxError:
-    with pytest.raises(PddlSyntaxError) as e:
+def refused(kind: type[InputError], text: str, problem_of, files: tuple[str, str]):
+    """Read ``text`` as a domain (or a problem of ``problem_of``); expect ``kind``."""
+    with pytest.raises(kind) as e:
         if problem_of is None:
-            parse_domain(text, "orrin.pddl")
+            parse_domain(text, files[0])
         else:
-            parse_problem(text, problem_of, "orrin-p.pddl")
+            parse_problem(text, problem_of, files[1])
     no_parser_internals(e.value)
-    assert len(e.value.spots) == 1
     return e.value
+
+
+def syntax(text: str, problem_of=None) -> PddlSyntaxError:
+    err = refused(PddlSyntaxError, text, problem_of, ("orrin.pddl", "orrin-p.pddl"))
+    assert len(err.spots) == 1
+    return err
 
 
 def test_missing_closing_parenthesis_at_end_of_file():
@@ -144,13 +150,7 @@ TRAMS = """(define (domain orrin-trams)
 
 
 def model_error(text: str, problem_of=None) -> ModelError:
-    with pytest.raises(ModelError) as e:
-        if problem_of is None:
-            parse_domain(text, "trams.pddl")
-        else:
-            parse_problem(text, problem_of, "trams-p.pddl")
-    no_parser_internals(e.value)
-    return e.value
+    return refused(ModelError, text, problem_of, ("trams.pddl", "trams-p.pddl"))
 
 
 def test_domain_with_many_mistakes_reports_all_of_them_in_order():
@@ -354,13 +354,7 @@ def test_object_may_repeat_a_constant_with_the_same_type_only():
 # Unsupported requirements
 
 def unsupported(text: str, problem_of=None) -> UnsupportedRequirement:
-    with pytest.raises(UnsupportedRequirement) as e:
-        if problem_of is None:
-            parse_domain(text, "x.pddl")
-        else:
-            parse_problem(text, problem_of, "x-p.pddl")
-    no_parser_internals(e.value)
-    return e.value
+    return refused(UnsupportedRequirement, text, problem_of, ("x.pddl", "x-p.pddl"))
 
 
 def test_unsupported_and_unknown_requirements_are_named():
