@@ -45,6 +45,7 @@ fuzz: $(STAMP)
 # Rewrite docs/schema/ from the models (tests/test_schema.py says when it is stale).
 schema: $(VENV)/.installed
 	$(VPY) -c "from plansieve.report import SCHEMA_PATH, schema_text; SCHEMA_PATH.parent.mkdir(parents=True, exist_ok=True); SCHEMA_PATH.write_text(schema_text())"
+	$(VPY) -c "from plansieve.loop.events import SCHEMA_PATH, schema_text; SCHEMA_PATH.write_text(schema_text())"
 
 clean:
 	rm -rf $(VENV) build dist *.egg-info

@@ -104,7 +104,8 @@ class _Found:
     unread: dict[int, str]  # line -> reason (the first reason wins)
 
     def step(self, line: int, step: PlanStep) -> None:
-        self.steps.append((line, len(self.steps), replace(step, line=line)))
+        self.steps.append((line, len(self.steps),
+                           PlanStep(step.action, step.args, step.time, step.duration, line)))
 
     def fail(self, line: int, reason: str) -> None:
         self.unread.setdefault(line, reason)
@@ -302,12 +303,21 @@ def _is_sexpr(content: str) -> bool:
     return m is not None and content[m.end():].startswith("(")
 
 
+# The common case, one untimed step alone on its line: read without the general scanner.
+_PLAIN_STEP = re.compile(r"\(\s*([A-Za-z][A-Za-z0-9_-]*(?:\s+[A-Za-z][A-Za-z0-9_-]*)*)\s*\)\s*")
+
+
 def _read_sexprs(content: str, steps: list[PlanStep]) -> None:
     """``(a x) (b y) [2]``... with optional times; commas or arrows may separate them.
 
     Steps are appended to ``steps`` as they are read, so a failure keeps the ones before.
     """
     body = content.split(";", 1)[0]
+    plain = _PLAIN_STEP.fullmatch(body)
+    if plain is not None:
+        words = plain.group(1).lower().split()
+        steps.append(PlanStep(words[0], tuple(words[1:])))
+        return
     i = 0
     while True:
         try:
@@ -454,6 +464,31 @@ def _attempt(reader, content: str) -> tuple[list[PlanStep], str | None]:
     return steps, None
 
 
+# A line holding one untimed step and perhaps a comment, and a line the general reader
+# would take for prose: no brackets, fences or list marker.
+_PLAIN_LINE = re.compile(
+    r"\s*\(\s*([A-Za-z][A-Za-z0-9_-]*(?:\s+[A-Za-z][A-Za-z0-9_-]*)*)\s*\)\s*(?:;.*)?")
+_NOT_PROSE = re.compile(r"[(\[{`~]")
+
+
+def _plain_answer(text: str) -> Extraction | None:
+    """The common clean answer — step lines and plain prose only — read in one pass.
+
+    Returns None when the answer has anything else (lists, fences, JSON, calls,
+    times); the general reader then takes it. Both give the same result on the
+    answers this one accepts (a property test compares them).
+    """
+    steps: list[PlanStep] = []
+    for number, line in enumerate(text.splitlines(), 1):
+        m = _PLAIN_LINE.fullmatch(line)
+        if m is not None:
+            words = m.group(1).lower().split()
+            steps.append(PlanStep(words[0], tuple(words[1:]), None, None, number))
+        elif _NOT_PROSE.search(line) or _MARKER.match(_EMPHASIS.sub("", line)):
+            return None
+    return Extraction(Plan(tuple(steps)), ())
+
+
 def extract_plan(text: str, action_names: Iterable[str] | None = None) -> Extraction:
     """Read the steps out of a guesser's answer; never raises.
 
@@ -461,8 +496,13 @@ def extract_plan(text: str, action_names: Iterable[str] | None = None) -> Extrac
     count as a step only when ``pick`` is one of them. Other step forms are read
     whatever their action: judging the action is the critics' job.
     """
-    actions = None if action_names is None else frozenset(str(a).lower() for a in action_names)
     text = str(text)
+    plain = _plain_answer(text)
+    return plain if plain is not None else _extract(text, action_names)
+
+
+def _extract(text: str, action_names: Iterable[str] | None) -> Extraction:
+    actions = None if action_names is None else frozenset(str(a).lower() for a in action_names)
     lines = text.splitlines()
     offsets, at = [], 0
     for chunk in text.splitlines(keepends=True):

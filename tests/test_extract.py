@@ -469,3 +469,26 @@ def test_extract_never_raises(answer, names):
         assert 1 <= step.line <= len(lines)
     for u in got.unread:
         assert 1 <= u.line <= len(lines) and u.text == lines[u.line - 1] and u.reason
+
+
+# The clean-answer shortcut must read exactly what the general reader reads. Lines are
+# drawn from step lines, prose, list items, fences, calls and JSON, so both the answers
+# the shortcut takes and those it hands on are covered.
+_answer_lines = st.sampled_from([
+    "(pick-up b1)", "  (stack b1 b2)  ", "(put-down B3) ; tidy", "(unstack b1)", "",
+    "Here is the plan:", "I hope this helps.", "Step 1: pick up", "1. (pick-up b1)",
+    "- (stack b1 b2)", "pick-up(b1)", "```", "0.5: (fly a) [2]", '[{"action": "x"}]',
+    "(pick-up b1", "** done **", "~~~", "Note: 3 steps", "* bullet", "(a)(b)",
+])
+
+
+@settings(max_examples=600, deadline=None)
+@given(st.lists(_answer_lines, max_size=12))
+def test_clean_answer_shortcut_reads_what_the_general_reader_reads(lines):
+    from plansieve.adapters import extract as ex
+    text = "\n".join(lines)
+    fast = ex._plain_answer(text)
+    if fast is not None:
+        slow = ex._extract(text, None)
+        assert fast == slow
+        assert [s.line for s in fast.plan.steps] == [s.line for s in slow.plan.steps]
