@@ -1,6 +1,8 @@
 """The ``plansieve`` command line.
 
-Exit codes: 0 the plan is valid, 1 it is not, 2 unreadable input or a usage error.
+``check``: 0 the plan is valid, 1 it is not, 2 unreadable input or a usage error.
+``run``: 0 a plan was verified, 1 the budget ran out first, 2 unreadable input or a
+usage error, 3 the guesser failed.
 """
 
 from __future__ import annotations
@@ -17,7 +19,7 @@ A PDDL model leaves out most of the real world. Where plans move people, goods,
 vehicles or money, keep the usual human review and engineering safeguards in
 place, and follow local regulations and licensed practice."""
 
-EXIT_VALID, EXIT_INVALID, EXIT_INPUT = 0, 1, 2
+EXIT_VALID, EXIT_INVALID, EXIT_INPUT, EXIT_GUESSER = 0, 1, 2, 3
 
 
 class _Parser(argparse.ArgumentParser):
@@ -53,22 +55,133 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--keep-going", action="store_true",
                        help="after a failing step, carry on as if it had worked, "
                             "so one run reports every problem it can")
+    _add_task_options(check)
     check.set_defaults(handler=_cmd_check)
+
+    run = sub.add_parser(
+        "run",
+        help="propose plans with a guesser and check them until one is verified",
+        description="The generate-and-test loop: a guesser proposes a plan, the critics "
+                    "check it, their findings go back to the guesser as feedback, and the "
+                    "loop stops at the first plan every sound critic accepts or when the "
+                    "budget runs out. Each round is printed as it happens.",
+        epilog=CAUTION + "\n\nexit codes: 0 a plan was verified, 1 the budget ran out first, "
+                         "2 unreadable input or usage error, 3 the guesser failed",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    run.add_argument("--domain", required=True, metavar="FILE", help="PDDL domain file")
+    run.add_argument("--problem", required=True, metavar="FILE", help="PDDL problem file")
+    run.add_argument("--guesser", choices=["local"], default="local",
+                     help="who proposes plans: 'local' is the built-in heuristic planner "
+                          "(no network)")
+    run.add_argument("--rounds", type=_positive_int, default=5, metavar="N",
+                     help="give up after N guesser calls (default 5)")
+    run.add_argument("--seconds", type=_positive_float, metavar="S",
+                     help="give up after S seconds of wall time")
+    run.add_argument("--tokens", type=_positive_int, metavar="N",
+                     help="give up once the guesser has used N tokens")
+    run.add_argument("--cost", type=_positive_float, metavar="X",
+                     help="give up once the guesser calls have cost X")
+    run.add_argument("--feedback", default="all-with-fixes", metavar="LEVEL",
+                     choices=["pass-fail", "first-problem", "all-problems", "all-with-fixes"],
+                     help="how much the guesser is told about a rejected plan: pass-fail, "
+                          "first-problem, all-problems or all-with-fixes (default)")
+    run.add_argument("--seed", type=int, default=0, metavar="S",
+                     help="seed for the local guesser (default 0)")
+    run.add_argument("--mistakes", type=_rate, default=0.0, metavar="RATE",
+                     help="local guesser: chance per step of each kind of mistake "
+                          "(dropped, swapped, wrong argument, invented step); default 0")
+    run.add_argument("--uptake", type=_rate, default=0.7, metavar="RATE",
+                     help="local guesser: chance it repairs a problem it is told about "
+                          "(default 0.7)")
+    run.add_argument("--trace", metavar="FILE",
+                     help="write the trace (JSON Lines, hash-chained) to FILE; an HMAC is "
+                          "added when PLANSIEVE_TRACE_KEY is set")
+    run.add_argument("--plan-out", metavar="FILE", help="write the verified plan to FILE")
+    run.add_argument("--run-all", action="store_true",
+                     help="ask every critic each round, not only up to the first that fails")
+    run.add_argument("--show-feedback", action="store_true",
+                     help="also print the feedback text sent back after each rejected round")
+    run.add_argument("--quiet", action="store_true", help="print only the result")
+    _add_task_options(run)
+    run.set_defaults(handler=_cmd_run)
     return top
+
+
+def _add_task_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--limits", metavar="FILE",
+                   help="limits file (TOML or JSON): resource bounds, deadlines, time settings")
+    p.add_argument("--critics", type=_critic_list, metavar="NAMES",
+                   help="comma-separated critics to run: plan-simulator, resource-counter, "
+                        "deadline-checker (default: those the task calls for)")
+
+
+def _positive_int(text: str) -> int:
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if n < 1:
+        raise argparse.ArgumentTypeError(f"expected a number of at least 1, got {n}")
+    return n
+
+
+def _positive_float(text: str) -> float:
+    try:
+        x = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+    if not x > 0 or x == float("inf"):
+        raise argparse.ArgumentTypeError(f"expected a positive finite number, got {text}")
+    return x
+
+
+def _rate(text: str) -> float:
+    try:
+        x = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text!r}") from None
+    if not 0 <= x <= 1:
+        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text}")
+    return x
+
+
+def _critic_list(text: str) -> list[str]:
+    from plansieve.critics.select import CRITIC_NAMES
+    names = [n.strip() for n in text.split(",") if n.strip()]
+    bad = [n for n in names if n not in CRITIC_NAMES]
+    if bad or not names:
+        raise argparse.ArgumentTypeError(
+            f"unknown critic {', '.join(bad) or '(none given)'}; expected a comma-separated "
+            f"list of {', '.join(CRITIC_NAMES)}")
+    return names
+
+
+def _load(args: argparse.Namespace):
+    """The task with its limits, and the critics to run on it."""
+    from plansieve.critics.limits import attach_limits, load_limits
+    from plansieve.critics.pddl import load_task
+    from plansieve.critics.select import critics_for
+
+    task = load_task(args.domain, args.problem)
+    if args.limits:
+        task = attach_limits(task, load_limits(args.limits), args.limits)
+    keep_going = getattr(args, "keep_going", False) or \
+        getattr(args, "feedback", "") in ("all-problems", "all-with-fixes")
+    return task, critics_for(task, keep_going=keep_going, names=args.critics)
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
     from plansieve.critics.check import check
-    from plansieve.critics.pddl import load_task
     from plansieve.critics.plan_text import load_plan, read_plan_auto
     from plansieve.report import CheckDocument, NamedFile, PlanFile, render_check
 
-    task = load_task(args.domain, args.problem)
+    task, critics = _load(args)
     if args.plan == "-":
         plan = read_plan_auto(sys.stdin.read(), "<stdin>")
     else:
         plan = load_plan(args.plan)
-    result = check(task, plan, keep_going=args.keep_going)
+    result = check(task, plan, critics)
     if args.json:
         doc = CheckDocument(
             domain=NamedFile(file=args.domain, name=task.domain.name),
@@ -83,6 +196,14 @@ def _cmd_check(args: argparse.Namespace) -> int:
             problem=f"{args.problem}  [{task.problem.name}]",
             plan_name=args.plan))
     return EXIT_VALID if result.passed else EXIT_INVALID
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from plansieve.run_cli import run_command
+    task, critics = _load(args)
+    return asyncio.run(run_command(args, task, critics))
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -63,6 +63,12 @@ async def run_command(args: argparse.Namespace, task: Task, critics: list) -> in
                        cost=args.cost)
     guesser = _guesser(args)
     say = (lambda text: None) if args.quiet else (lambda text: print(text, flush=True))
+
+    def on_round(s: RoundSummary) -> None:
+        say(round_line(s))
+        if args.show_feedback and s.feedback:
+            say("".join(f"    | {line}\n" for line in s.feedback.splitlines()).rstrip("\n"))
+
     chain = CriticChain(critics, run_all=args.run_all)
     say(f"plansieve run: {task.problem.name} ({task.domain.name}), guesser {guesser.name}, "
         f"feedback {args.feedback}, budget {budget}")
@@ -72,7 +78,7 @@ async def run_command(args: argparse.Namespace, task: Task, critics: list) -> in
         outcome = await sieve(task, guesser, critics=chain, feedback=args.feedback,
                               budget=budget, trace=trace, seed=args.seed,
                               task_id=os.path.basename(args.problem),
-                              on_round=lambda s: say(round_line(s)))
+                              on_round=on_round)
     finally:
         if trace is not None:
             trace.close()
