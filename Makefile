@@ -4,6 +4,7 @@ VENV    := .venv
 VPY     := $(VENV)/bin/python
 STAMP   := $(VENV)/.installed-test
 DEMO    := examples/harbour
+DEMO_SEED := 0
 
 .PHONY: demo test bench fuzz schema clean
 
@@ -19,17 +20,30 @@ $(STAMP): pyproject.toml | $(VPY)
 	$(VPY) -m pip install -q -e '.[test]'
 	touch $@ $(VENV)/.installed
 
+CHECK   := $(VENV)/bin/plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl --limits $(DEMO)/limits.toml
+RUN     := $(VENV)/bin/plansieve run --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl --limits $(DEMO)/limits.toml
+
+# Each step states the exit code it expects and fails the demo if it gets another.
 demo: $(VENV)/.installed
-	@echo "== a plan that should pass"
-	@echo "$$ plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-good.plan"
-	@$(VENV)/bin/plansieve check --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl \
-	    $(DEMO)/plan-good.plan; rc=$$?; echo "(exit code $$rc: 0 means valid)"; [ $$rc -eq 0 ]
+	@echo "== 1. a plan that keeps every rule of the shift"
+	@echo "$$ plansieve check --limits $(DEMO)/limits.toml ... $(DEMO)/plan-good.plan"
+	@$(CHECK) $(DEMO)/plan-good.plan; rc=$$?; echo "(exit code $$rc: 0 means valid)"; [ $$rc -eq 0 ]
 	@echo
-	@echo "== a plan that should fail; --keep-going reports every problem in one run"
-	@echo "$$ plansieve check --keep-going --domain $(DEMO)/domain.pddl --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan"
-	@$(VENV)/bin/plansieve check --keep-going --domain $(DEMO)/domain.pddl \
-	    --problem $(DEMO)/problem.pddl $(DEMO)/plan-broken.plan; \
-	    rc=$$?; echo "(exit code $$rc: 1 means not valid)"; [ $$rc -eq 1 ]
+	@echo "== 2. a hurried plan; --keep-going reports every problem in one run"
+	@$(CHECK) --keep-going $(DEMO)/plan-broken.plan; rc=$$?; echo "(exit code $$rc: 1 means not valid)"; [ $$rc -eq 1 ]
+	@echo
+	@echo "== 3. every step works, but the shift budget is overspent"
+	@$(CHECK) $(DEMO)/plan-over-budget.plan; rc=$$?; echo "(exit code $$rc)"; [ $$rc -eq 1 ]
+	@echo
+	@echo "== 4. every step works, but the customs slot is missed"
+	@$(CHECK) $(DEMO)/plan-late.plan; rc=$$?; echo "(exit code $$rc)"; [ $$rc -eq 1 ]
+	@echo
+	@echo "== 5. the loop: the local guesser proposes plans with mistakes, the critics' findings go back as feedback"
+	@mkdir -p demo-output && rm -f demo-output/harbour-trace.jsonl
+	@echo "$$ plansieve run --limits $(DEMO)/limits.toml ... --mistakes 0.08 --seed $(DEMO_SEED) --show-feedback --trace demo-output/harbour-trace.jsonl"
+	@$(RUN) --mistakes 0.08 --seed $(DEMO_SEED) --show-feedback \
+	    --trace demo-output/harbour-trace.jsonl --plan-out demo-output/harbour-verified.plan; \
+	    rc=$$?; echo "(exit code $$rc: 0 means a plan was verified)"; [ $$rc -eq 0 ]
 
 test: $(STAMP)
 	$(VPY) -m pytest -q -p no:cacheprovider; rc=$$?; if [ $$rc -eq 5 ]; then echo "no tests collected"; exit 1; fi; exit $$rc
@@ -48,4 +62,4 @@ schema: $(VENV)/.installed
 	$(VPY) -c "from plansieve.loop.events import SCHEMA_PATH, schema_text; SCHEMA_PATH.write_text(schema_text())"
 
 clean:
-	rm -rf $(VENV) build dist *.egg-info
+	rm -rf $(VENV) build dist *.egg-info demo-output

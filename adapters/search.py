@@ -649,12 +649,62 @@ class Relaxation:
 # The search
 
 
+class _Limits:
+    """The task's limits file as pruning rules: a state that already breaks a resource
+    bound, or passes a deadline on the clock with its condition false, leads nowhere
+    the critics would accept. The search is still a guess: it may miss plans that
+    meet a deadline by making its condition true and false again."""
+
+    def __init__(self, world: World) -> None:
+        from plansieve.critics.grounding import exact, ground_formula
+        from plansieve.critics.limits import condition_of, fluent_key
+        from plansieve.critics.resources import resources_of
+
+        self.bounds = [(r.key, r.floor, r.floor_strict, r.ceiling, r.ceiling_strict)
+                       for r in resources_of(world.task, world.universe)]
+        self.clock = None
+        self.deadlines: list = []
+        lim = world.task.limits
+        if lim is not None and lim.time.clock is not None:
+            self.clock = fluent_key(lim.time.clock)
+            self.deadlines = [(exact(d.by), ground_formula(condition_of(d.condition), {},
+                                                           world.universe))
+                              for d in lim.deadline]
+        self.functions = frozenset(k[0] for k, *_ in self.bounds) | (
+            frozenset([self.clock[0]]) if self.clock else frozenset())
+
+    def __bool__(self) -> bool:
+        return bool(self.bounds or self.deadlines)
+
+    def allow(self, atoms, fluents) -> bool:
+        for key, lo, lo_strict, hi, hi_strict in self.bounds:
+            v = fluents.get(key)
+            if v is None:
+                continue
+            if lo is not None and (v < lo or (lo_strict and v == lo)):
+                return False
+            if hi is not None and (v > hi or (hi_strict and v == hi)):
+                return False
+        if self.deadlines:
+            now = fluents.get(self.clock)
+            for by, cond in self.deadlines:
+                if now is not None and now > by:
+                    try:
+                        if not holds(cond, atoms, fluents):
+                            return False
+                    except (Undefined, DivisionByZero):
+                        return False
+        return True
+
+
 class _Search:
     def __init__(self, reach: Reachable, heuristic: str) -> None:
         self.reach = reach
         self.relax = Relaxation(reach)
         self.h = self.relax.h_ff if heuristic == "ff" else self.relax.h_add
-        self.read = reach.read_functions
+        self.limits = _Limits(reach.world)
+        # bounded fluents matter by value, even when no action reads them
+        self.read = reach.read_functions | self.limits.functions
 
     def fluent_key(self, fluents: dict):
         """Fluent part of a duplicate key. A fluent never read (only changed, like
@@ -696,10 +746,11 @@ class _Search:
             if got:
                 picked.extend(got)
         picked.sort()
+        limits = self.limits if self.limits else None
         for i in picked:
             m = reach.moves[i]
             nxt = _advance(m, atoms, fluents)
-            if nxt is not None:
+            if nxt is not None and (limits is None or limits.allow(nxt[0], nxt[1])):
                 yield i, nxt[0], nxt[1]
 
 

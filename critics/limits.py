@@ -50,15 +50,15 @@ class _Frozen(BaseModel):
 
 
 # A finite number written as one: not text, not true/false, not inf or nan.
-Num = Annotated[float, Field(strict=True, allow_inf_nan=False)]
+FiniteNumber = Annotated[float, Field(strict=True, allow_inf_nan=False)]
 
 
 class ResourceLimit(_Frozen):
     """A numeric fluent that must stay at or above ``floor`` and at or below ``ceiling``."""
 
     fluent: str = Field(description='A ground function term in PDDL, e.g. "(charge carrier-7)".')
-    floor: Num | None = None
-    ceiling: Num | None = None
+    floor: FiniteNumber | None = None
+    ceiling: FiniteNumber | None = None
     unit: str | None = None
     label: str | None = None
 
@@ -75,16 +75,16 @@ class DeadlineRule(_Frozen):
     """A condition that must hold at some time no later than ``by``."""
 
     condition: str = Field(description='A ground condition in PDDL, e.g. "(delivered kit3)".')
-    by: Num = Field(ge=0)
+    by: FiniteNumber = Field(ge=0)
     label: str | None = None
 
 
 class TimeSettings(_Frozen):
-    makespan: Num | None = Field(default=None, gt=0,
+    makespan: FiniteNumber | None = Field(default=None, gt=0,
                                    description="The latest time the last happening may fall at.")
     clock: str | None = Field(default=None,
                               description="A fluent that sequential plans advance as time.")
-    tolerance: Num = Field(default=0.001, gt=0,
+    tolerance: FiniteNumber = Field(default=0.001, gt=0,
                              description="Interfering happenings must be at least this far apart.")
 
 
@@ -241,5 +241,14 @@ def attach_limits(task: Task, limits: Limits, filename: str = "<limits>") -> Tas
             out.issues(f"deadline[{i}].condition", checker.formula_issues(f), d.condition)
     if limits.time.clock is not None:
         fluent(limits.time.clock, "time.clock")
-    out.raise_if_any()
+    try:
+        out.raise_if_any()
+    except InputError as e:
+        # Positions inside a value are not positions in the file: say where in the value.
+        spots = [s if s.line is None else Spot(
+            s.file, None, None,
+            f"{s.message.replace('the end of the file', 'the end of the value')} (at "
+            f"character {s.column} of {(s.line_text or '').strip()!r})", None, s.field)
+            for s in e.spots]
+        raise type(e)(spots) from None
     return dataclasses.replace(task, limits=limits)

@@ -11,7 +11,10 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass, field
-from typing import Any, TypeVar, Union
+from typing import TYPE_CHECKING, Any, TypeVar, Union
+
+if TYPE_CHECKING:
+    from plansieve.critics.limits import Limits
 
 K = TypeVar("K")
 V = TypeVar("V")
@@ -419,13 +422,15 @@ class Problem:
 
 @dataclass(frozen=True, slots=True)
 class Task:
-    """What a critic judges a plan against: a domain and one of its problems.
+    """What a critic judges a plan against: a domain, one of its problems, and limits.
 
-    Later critics read optional sections (resource limits, deadlines) added here.
+    ``limits`` (resource bounds, deadlines, time settings; see
+    :mod:`plansieve.critics.limits`) come from a limits file beside the PDDL.
     """
 
     domain: Domain
     problem: Problem
+    limits: "Limits | None" = None
 
     def objects_of(self) -> FrozenMap[str, tuple[str, ...]]:
         """Every object and constant with its declared types."""

@@ -577,11 +577,12 @@ class ProblemChecker:
         e = til.effect
         if isinstance(e, (Add, Delete)):
             out.extend(self.fact_issues(e.atom.key, e.atom.loc))
-        else:
-            fl, head = e.fluent, e.fluent.loc
-            out.extend(self.value_issues(InitValue(
-                (fl.function, *fl.args), e.value.value, e.loc and e.loc.line,
-                e.loc and e.loc.column, head and head.line, head and head.column)))
+        else:  # a value set later: check the term, but it is no second initial value
+            fl = e.fluent
+            key = (fl.function, *fl.args)
+            if not self._arguments_fit(key, True):
+                self.body.fluent(FluentRef(fl.function, fl.args, fl.loc), {})
+                out.extend(self._take())
         return out
 
     def init_issues(self, el) -> list[Issue]:

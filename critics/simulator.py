@@ -5,27 +5,38 @@ the run, or — with ``keep_going`` — is applied anyway so that one pass repor
 every problem it can find. Steps that name no real action are skipped in that
 mode. The goal is checked in the final state, one finding per unmet part.
 
-Steps run in the order written. A durative action is read sequentially, its start
-half then its end half; durations, overlap and timed literals are for a temporal
-critic, so for a timed plan a pass here means only that the sequential reading holds.
+Untimed plans run in the order written; a durative action is read sequentially,
+its start half (``at start`` conditions and effects) then its end half (``over
+all`` and ``at end`` conditions, ``at end`` effects). Timed plans run as their
+happenings in time order (:mod:`plansieve.critics.happenings`): starts (``at
+start`` conditions), ends (``at end`` conditions), instantaneous steps and the
+problem's timed initial literals up to the plan's end, each read in the state
+just before it. What this critic does not judge in a timed plan — ``over all``
+conditions, duration constraints, interference between close happenings,
+trajectory constraints and deadlines — is the deadline checker's job, so a pass
+here means only that every happening applies in that order and the goal holds
+when the plan ends.
 """
 
 from __future__ import annotations
 
 import time
 
-from plansieve.critics import render
-from plansieve.critics.grounding import GroundAction
-from plansieve.critics.model import Compare, Task
+from plansieve.critics.explain import (
+    failed_preconditions, false_condition, numeric_findings, unmet_goals,
+)
+from plansieve.critics.happenings import (
+    binder_of, exact_time, missing_duration, runs_timed, schedule, usable,
+)
+from plansieve.critics.model import Task
 from plansieve.critics.plan import Plan
-from plansieve.critics.state import (
-    DivisionByZero, EffectClash, State, Undefined, apply, holds, value,
-)
-from plansieve.critics.verdict import DivisionByZero as DivisionByZeroFinding
-from plansieve.critics.verdict import (
-    EffectConflict, FluentUndefined, GoalUnmet, PreconditionFalse, Verdict,
-)
+from plansieve.critics.state import apply
+from plansieve.critics.verdict import Verdict
 from plansieve.critics.world import World
+
+# Kept under their old names for callers that imported them from here.
+_false_condition = false_condition
+_numeric_findings = numeric_findings
 
 
 class PlanSimulator:
@@ -51,10 +62,20 @@ class PlanSimulator:
     def check(self, task: Task, plan: Plan) -> Verdict:
         started = time.perf_counter()
         world = self.world(task)
+        if runs_timed(plan):
+            findings, checked = self._run_timed(world, plan)
+        else:
+            findings, checked = self._run_sequential(world, plan)
+        return Verdict(critic=self.name, version=self.version, sound=self.sound,
+                       passed=not findings, findings=findings, steps_checked=checked,
+                       seconds=time.perf_counter() - started)
+
+    def _run_sequential(self, world: World, plan: Plan) -> tuple[list, int]:
         state = world.initial_state()
         atoms = state.atoms
         cache = world.cache
         keep_going = self.keep_going
+        binder = binder_of(world)
         findings: list = []
         checked = 0
         stopped = False
@@ -74,14 +95,21 @@ class PlanSimulator:
                     atoms |= ga.adds
                     continue
                 text = step.call()
-                problems = self._failed_conditions(world, ga, state, number, text)
+                if binder.needs(ga):
+                    if step.duration is None or not usable(step.duration):
+                        findings.append(missing_duration(world, number, step, reads=True))
+                        if not keep_going:
+                            stopped = True
+                        break  # the rest of this step cannot be computed
+                    ga = binder.bind(ga, exact_time(step.duration))
+                problems = failed_preconditions(world, ga, state, number, text)
                 if problems and not keep_going:
                     findings.extend(problems)
                     stopped = True
                     break
                 troubles = apply(ga, state)
                 if troubles:
-                    problems += _numeric_findings(troubles, number, text, "effect")
+                    problems += numeric_findings(troubles, number, text, "effect")
                 findings.extend(problems)
                 if problems and not keep_going:
                     stopped = True
@@ -89,91 +117,47 @@ class PlanSimulator:
             if stopped:
                 break
         if not stopped:
-            findings.extend(self._unmet_goals(world, state))
-        return Verdict(critic=self.name, version=self.version, sound=self.sound,
-                       passed=not findings, findings=findings, steps_checked=checked,
-                       seconds=time.perf_counter() - started)
+            findings.extend(unmet_goals(world, state))
+        return findings, checked
 
-    @staticmethod
-    def _failed_conditions(world: World, ga: GroundAction, state: State, number: int,
-                           text: str) -> list:
-        atoms, fluents = state.atoms, state.fluents
-        if ga.pre_pos <= atoms and ga.pre_neg.isdisjoint(atoms) and not ga.pre_other:
-            return []
-        out: list = []
-        for key in sorted(ga.pre_pos - atoms):
-            cond = render.ground_atom(key)
-            out.append(PreconditionFalse(
-                step=number, step_text=text, action=ga.name, condition=cond,
-                hints=world.hints.for_atom(key, True),
-                message=f"{text} needs {cond}, which does not hold"))
-        for key in sorted(ga.pre_neg & atoms):
-            cond = f"(not {render.ground_atom(key)})"
-            out.append(PreconditionFalse(
-                step=number, step_text=text, action=ga.name, condition=cond,
-                hints=world.hints.for_atom(key, False),
-                message=f"{text} needs {render.ground_atom(key)} to be false, but it holds"))
-        for f in ga.pre_other:
-            try:
-                if holds(f, atoms, fluents):
-                    continue
-            except (Undefined, DivisionByZero) as exc:
-                out.extend(_numeric_findings([exc], number, text, "precondition"))
+    def _run_timed(self, world: World, plan: Plan) -> tuple[list, int]:
+        """Apply the happenings of a timed plan in time order (see the module docstring)."""
+        sched = schedule(world, plan)
+        keep_going = self.keep_going
+        findings: list = []
+        if sched.problems:
+            if not keep_going:
+                first = min(p.step for p in sched.problems)
+                return [p for p in sched.problems if p.step == first], first
+            findings.extend(sched.problems)
+        state = world.initial_state()
+        atoms = state.atoms
+        seen: set[int] = set()
+        steps = plan.steps
+        end = sched.end
+        for h in sched.happenings:
+            if h.time > end:
+                break  # only timed literals are left, stamped after the plan ends
+            ga = h.action
+            number = h.step
+            if number is not None:
+                seen.add(number)
+            if ga.plain and ga.pre_pos <= atoms and ga.pre_neg.isdisjoint(atoms):
+                atoms -= ga.dels
+                atoms |= ga.adds
                 continue
-            out.append(_false_condition(world, f, fluents, PreconditionFalse, text,
-                                        step=number, step_text=text, action=ga.name))
-        return out
-
-    @staticmethod
-    def _unmet_goals(world: World, state: State) -> list:
-        out: list = []
-        for f in world.goal:
-            try:
-                if holds(f, state.atoms, state.fluents):
-                    continue
-            except (Undefined, DivisionByZero) as exc:
-                out.extend(_numeric_findings([exc], None, None, "goal"))
-                continue
-            out.append(_false_condition(world, f, state.fluents, GoalUnmet, "the goal"))
-        return out
-
-
-def _false_condition(world: World, f, fluents: dict, kind, who: str, **fields):
-    cond = render.formula(f)
-    extra: dict = {}
-    if isinstance(f, Compare):
-        left, right = value(f.left, fluents), value(f.right, fluents)
-        extra = {"left_value": float(left), "right_value": float(right)}
-        detail = (f"{cond}, but the left side is {render.number(left)} "
-                  f"and the right side {render.number(right)}")
-    else:
-        detail = f"{cond}, which does not hold"
-    if kind is GoalUnmet:
-        message = f"at the end of the plan the goal needs {detail}"
-    else:
-        message = f"{who} needs {detail}"
-    return kind(condition=cond, hints=world.hints.for_condition(f), message=message,
-                **extra, **fields)
-
-
-def _numeric_findings(troubles: list, number: int | None, text: str | None, context: str):
-    out: list = []
-    where = f"{text}: " if text else "goal: "
-    for exc in troubles:
-        if isinstance(exc, EffectClash):
-            fl = render.ground_atom(exc.key)
-            out.append(EffectConflict(
-                step=number, step_text=text, fluent=fl, effects=exc.ops,
-                message=f"{where}changes {fl} by {' and '.join(exc.ops)} at once; only "
-                        f"increases and decreases of one fluent combine in a single step"))
-        elif isinstance(exc, Undefined):
-            fl = render.ground_atom(exc.key)
-            out.append(FluentUndefined(
-                step=number, step_text=text, fluent=fl, context=context,
-                message=f"{where}{fl} is read in the {context} but has no value yet"))
-        else:
-            ex = render.expr(exc.calc)
-            out.append(DivisionByZeroFinding(
-                step=number, step_text=text, expression=ex, context=context,
-                message=f"{where}{ex} divides by zero in the {context}"))
-    return out
+            when = float(h.time)
+            text = steps[number - 1].call() if number is not None else ga.schema.name
+            part = h.part if h.part in ("start", "end") else None
+            problems = failed_preconditions(world, ga, state, number, text, time=when,
+                                            part=part)
+            if problems and not keep_going:
+                return findings + problems, len(seen)
+            troubles = apply(ga, state)
+            if troubles:
+                problems += numeric_findings(troubles, number, text, "effect", time=when)
+            findings.extend(problems)
+            if problems and not keep_going:
+                return findings, len(seen)
+        findings.extend(unmet_goals(world, state, time=float(end)))
+        return findings, len(plan.steps)

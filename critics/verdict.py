@@ -36,6 +36,8 @@ class _Finding(_Frozen):
     # 1-based step number and the step as written; None for findings about the end state.
     step: int | None = None
     step_text: str | None = None
+    # Plan time the finding is about, for timed plans and plans read on a clock fluent.
+    time: float | None = None
 
 
 class ActionUnknown(_Finding):
@@ -74,12 +76,14 @@ class PreconditionFalse(_Finding):
     left_value: float | None = None
     right_value: float | None = None
     hints: list[Hint] = []
+    # For a durative action in a timed plan: the end whose condition failed.
+    part: Literal["start", "end"] | None = None
 
 
 class FluentUndefined(_Finding):
     code: Literal["fluent-undefined"] = "fluent-undefined"
     fluent: str
-    context: Literal["precondition", "effect", "goal"]
+    context: Literal["precondition", "effect", "goal", "limit"]
 
 
 class DivisionByZero(_Finding):
@@ -102,11 +106,146 @@ class GoalUnmet(_Finding):
     hints: list[Hint] = []
 
 
+# -- resource counter ---------------------------------------------------------------
+
+class LimitCrossed(_Finding):
+    """A resource went past its floor or ceiling; ``excess`` says by how much."""
+
+    code: Literal["limit-crossed"] = "limit-crossed"
+    resource: str  # the ground fluent, e.g. "(charge carrier-7)"
+    label: str | None = None
+    unit: str | None = None
+    bound: Literal["floor", "ceiling"]
+    limit: float
+    value: float
+    excess: float
+    # In a timed plan: the steps whose durative actions are running at that time.
+    concurrent_steps: list[int] = []
+    # Actions whose effects move the resource back inside its bounds.
+    hints: list[Hint] = []
+    # A strict bound (PDDL3 ``<`` or ``>``): reaching the limit itself crosses it.
+    strict: bool = False
+    # When the resource goes further past the bound later in the plan: how far, and where.
+    worst_excess: float | None = None
+    worst_step: int | None = None
+    worst_time: float | None = None
+
+
+# -- deadline checker -----------------------------------------------------------------
+
+class DeadlineMissed(_Finding):
+    code: Literal["deadline-missed"] = "deadline-missed"
+    condition: str
+    deadline: float
+    reached_at: float | None = None  # None: never reached within the plan
+    late_by: float | None = None
+    clock: str | None = None  # the clock fluent, when time is read on one
+
+
+class Window(_Frozen):
+    """An interval in which a condition holds, as set by timed initial literals."""
+
+    opens: float | None = None  # None: from the start
+    closes: float | None = None  # None: never closes
+
+
+class WindowViolated(_Finding):
+    """A condition that timed initial literals make true only in windows was needed outside them."""
+
+    code: Literal["window-violated"] = "window-violated"
+    action: str
+    condition: str
+    part: Literal["start", "end", "over-all", "step"]
+    windows: list[Window] = []
+
+
+class InvariantBroken(_Finding):
+    """An ``over all`` condition failed inside a durative action's open interval."""
+
+    code: Literal["invariant-broken"] = "invariant-broken"
+    action: str
+    condition: str
+    interval_start: float
+    interval_end: float
+    broken_at: float
+    # the step whose happening made it false, if one did (a timed literal otherwise)
+    broken_by: str | None = None
+
+
+class DurationOutOfBounds(_Finding):
+    code: Literal["duration-out-of-bounds"] = "duration-out-of-bounds"
+    action: str
+    duration: float | None  # None: the step gives no duration
+    minimum: float | None = None
+    maximum: float | None = None
+    constraint: str
+
+
+class HappeningsTooClose(_Finding):
+    """Two happenings that interfere are closer in time than the tolerance."""
+
+    code: Literal["happenings-too-close"] = "happenings-too-close"
+    other_step: int | None = None  # None when the other happening is a timed initial literal
+    other_step_text: str
+    gap: float
+    tolerance: float
+    shared: str  # the fact or fluent one changes and the other reads or changes
+
+
+class ConstraintViolated(_Finding):
+    """A trajectory constraint (PDDL3) does not hold over the plan."""
+
+    code: Literal["constraint-violated"] = "constraint-violated"
+    constraint: str
+    operator: str  # always, sometime, within, at-most-once, ...
+
+
+class MakespanOver(_Finding):
+    code: Literal["makespan-over"] = "makespan-over"
+    makespan: float
+    limit: float
+    excess: float
+
+
 Finding = Annotated[
     Union[ActionUnknown, ArityMismatch, ObjectUnknown, ArgumentType, PreconditionFalse,
-          FluentUndefined, DivisionByZero, EffectConflict, GoalUnmet],
+          FluentUndefined, DivisionByZero, EffectConflict, GoalUnmet, LimitCrossed,
+          DeadlineMissed, WindowViolated, InvariantBroken, DurationOutOfBounds,
+          HappeningsTooClose, ConstraintViolated, MakespanOver],
     Field(discriminator="code"),
 ]
+
+
+class ProfilePoint(_Frozen):
+    """A resource's value after a step (sequential plans) or at a time (timed plans)."""
+
+    step: int | None = None  # None for the initial value and for timed literals
+    time: float | None = None
+    value: float
+
+
+class ResourceProfile(_Frozen):
+    """How one resource moved through the plan."""
+
+    resource: str
+    label: str | None = None
+    unit: str | None = None
+    floor: float | None = None
+    ceiling: float | None = None
+    points: list[ProfilePoint]
+    initial: float
+    peak: float
+    low: float
+    final: float
+
+
+class TimelineEntry(_Frozen):
+    """One deadline or limit on time and how the plan fared against it."""
+
+    what: str  # the condition, or "makespan"
+    deadline: float
+    reached_at: float | None = None
+    met: bool
 
 
 class Verdict(_Frozen):
@@ -119,6 +258,9 @@ class Verdict(_Frozen):
     findings: list[Finding] = []
     steps_checked: int = 0
     seconds: float = 0.0
+    # Filled by the resource counter and the deadline checker; empty for other critics.
+    profiles: list[ResourceProfile] = []
+    timeline: list[TimelineEntry] = []
 
     def codes(self) -> list[str]:
         return [f.code for f in self.findings]

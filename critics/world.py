@@ -14,7 +14,9 @@ from plansieve.critics.grounding import (
     ground_formula,
 )
 from plansieve.critics.hints import HintIndex
-from plansieve.critics.model import Action, And, DurativeAction, Task, Timed, TimedEffect
+from plansieve.critics.model import (
+    Action, And, DurativeAction, Preference, Task, Timed, TimedEffect,
+)
 from plansieve.critics.plan import PlanStep
 from plansieve.critics.state import State
 from plansieve.critics.verdict import ActionUnknown, ArgumentType, ArityMismatch, ObjectUnknown
@@ -29,8 +31,11 @@ def _durative_halves(da: DurativeAction) -> tuple[Action, Action]:
     """
     parts = da.condition.parts if isinstance(da.condition, And) else (
         (da.condition,) if da.condition is not None else ())
-    start_c = [p.body for p in parts if isinstance(p, Timed) and p.when == "start"]
-    end_c = [p.body for p in parts if isinstance(p, Timed) and p.when in ("all", "end")]
+    # preferences are soft: they never decide whether a step can run
+    start_c = [p.body for p in parts if isinstance(p, Timed) and p.when == "start"
+               and not isinstance(p.body, Preference)]
+    end_c = [p.body for p in parts if isinstance(p, Timed) and p.when in ("all", "end")
+             and not isinstance(p.body, Preference)]
     start_e = tuple(e.effect for e in da.effects if isinstance(e, TimedEffect) and e.when == "start")
     end_e = tuple(e.effect for e in da.effects if isinstance(e, TimedEffect) and e.when == "end")
     return (Action(da.name, da.params, And(tuple(start_c)), start_e, da.loc),

@@ -40,6 +40,53 @@ _EXPORTS: dict[str, str] = {
     "Verdict": "plansieve.critics.verdict",
     "Finding": "plansieve.critics.verdict",
     "Hint": "plansieve.critics.verdict",
+    "LimitCrossed": "plansieve.critics.verdict",
+    # limits files
+    "Limits": "plansieve.critics.limits",
+    "load_limits": "plansieve.critics.limits",
+    "parse_limits": "plansieve.critics.limits",
+    "attach_limits": "plansieve.critics.limits",
+    "critics_for": "plansieve.critics.select",
+    # the loop
+    "sieve": "plansieve.loop.engine",
+    "sieve_sync": "plansieve.loop.engine",
+    "Outcome": "plansieve.loop.outcome",
+    "RoundSummary": "plansieve.loop.outcome",
+    "CriticChain": "plansieve.loop.chain",
+    "Link": "plansieve.loop.chain",
+    "advisory": "plansieve.loop.chain",
+    "FeedbackNote": "plansieve.loop.feedback",
+    "compose_feedback": "plansieve.loop.feedback",
+    "Budget": "plansieve.loop.budget",
+    "Prices": "plansieve.loop.budget",
+    "at_most_rounds": "plansieve.loop.budget",
+    "at_most_seconds": "plansieve.loop.budget",
+    "at_most_tokens": "plansieve.loop.budget",
+    "at_most_cost": "plansieve.loop.budget",
+    "budget_of": "plansieve.loop.budget",
+    "TraceWriter": "plansieve.loop.trace",
+    "FileSink": "plansieve.loop.trace",
+    "MemorySink": "plansieve.loop.trace",
+    "CallbackSink": "plansieve.loop.trace",
+    "Redactor": "plansieve.loop.trace",
+    # guessers
+    "Guesser": "plansieve.adapters.guesser",
+    "GuessRequest": "plansieve.adapters.guesser",
+    "Guess": "plansieve.adapters.guesser",
+    "Usage": "plansieve.adapters.guesser",
+    "Attempt": "plansieve.adapters.guesser",
+    "GuesserFailed": "plansieve.adapters.guesser",
+    "HeuristicGuesser": "plansieve.adapters.heuristic",
+    "MistakeRates": "plansieve.adapters.mistakes",
+    "ScriptedGuesser": "plansieve.adapters.scripted",
+    "ReplayGuesser": "plansieve.adapters.replay",
+    # traces
+    "read_trace": "plansieve.loop.trace_read",
+    "verify_trace": "plansieve.loop.trace_read",
+    "TraceIntegrity": "plansieve.loop.trace_read",
+    "TraceError": "plansieve.loop.trace",
+    "key_from_env": "plansieve.loop.trace",
+    "Totals": "plansieve.loop.events",
     # errors
     "PlansieveError": "plansieve.critics.errors",
     "InputError": "plansieve.critics.errors",
@@ -80,4 +127,25 @@ if TYPE_CHECKING:  # for type checkers and IDEs
     from plansieve.critics.plan_text import load_plan, read_plan, read_plan_json
     from plansieve.critics.protocol import Critic
     from plansieve.critics.simulator import PlanSimulator
-    from plansieve.critics.verdict import Finding, Hint, Verdict
+    from plansieve.adapters.guesser import (
+        Attempt, Guess, Guesser, GuesserFailed, GuessRequest, Usage,
+    )
+    from plansieve.adapters.heuristic import HeuristicGuesser
+    from plansieve.adapters.mistakes import MistakeRates
+    from plansieve.adapters.replay import ReplayGuesser
+    from plansieve.adapters.scripted import ScriptedGuesser
+    from plansieve.loop.events import Totals
+    from plansieve.loop.trace import TraceError, key_from_env
+    from plansieve.loop.trace_read import TraceIntegrity, read_trace, verify_trace
+    from plansieve.critics.limits import Limits, attach_limits, load_limits, parse_limits
+    from plansieve.critics.select import critics_for
+    from plansieve.critics.verdict import Finding, Hint, LimitCrossed, Verdict
+    from plansieve.loop.budget import (
+        Budget, Prices, at_most_cost, at_most_rounds, at_most_seconds, at_most_tokens,
+        budget_of,
+    )
+    from plansieve.loop.chain import CriticChain, Link, advisory
+    from plansieve.loop.engine import sieve, sieve_sync
+    from plansieve.loop.feedback import FeedbackNote, compose_feedback
+    from plansieve.loop.outcome import Outcome, RoundSummary
+    from plansieve.loop.trace import CallbackSink, FileSink, MemorySink, Redactor, TraceWriter

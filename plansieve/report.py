@@ -11,6 +11,7 @@ from pydantic import BaseModel, ConfigDict
 from plansieve.critics.check import CheckResult
 from plansieve.critics.plan import Plan
 from plansieve.critics.verdict import Verdict
+from plansieve.profile_text import render_profiles
 
 SCHEMA_PATH = Path(__file__).resolve().parents[1] / "docs" / "schema" / "check.schema.json"
 
@@ -58,7 +59,22 @@ def _hints(finding, limit: int = 4) -> list[str]:
         return []
     shown = ", ".join(h.call() for h in hints[:limit])
     more = f" (+{len(hints) - limit} more)" if len(hints) > limit else ""
-    return [f"        could be made true by: {shown}{more}"]
+    return [f"        could be repaired by first doing one of: {shown}{more}"]
+
+
+def render_timeline(v: Verdict) -> list[str]:
+    """One line per deadline or time limit: met or missed, and when."""
+    out = []
+    for e in v.timeline:
+        if e.met:
+            when = f"reached at {e.reached_at:g}" if e.reached_at is not None else "met"
+            out.append(f"met     {e.what}: by {e.deadline:g}, {when}")
+        elif e.reached_at is not None:
+            out.append(f"MISSED  {e.what}: by {e.deadline:g}, reached at {e.reached_at:g} "
+                       f"({e.reached_at - e.deadline:g} late)")
+        else:
+            out.append(f"MISSED  {e.what}: by {e.deadline:g}, never reached")
+    return out
 
 
 def render_check(result: CheckResult, plan: Plan, *, domain: str, problem: str,
@@ -77,9 +93,19 @@ def render_check(result: CheckResult, plan: Plan, *, domain: str, problem: str,
         lines.append(f"  {v.critic} {v.version} ({kind}): {state}, {n} finding"
                      f"{'s' if n != 1 else ''}, {v.steps_checked} of {len(plan)} steps run, "
                      f"{v.seconds * 1000:.2f} ms")
+    for v in result.verdicts:
+        if v.profiles:
+            lines += ["", "  resources (strip, low to high: _ . - ~ ^   ! = limit crossed)"]
+            lines += [f"  {l}" for l in render_profiles(v, width=100)]
+        if v.timeline:
+            lines += ["", "  deadlines"] + [f"    {l}" for l in render_timeline(v)]
     groups: dict[int | None, list] = {}
-    for f in result.findings:
-        groups.setdefault(f.step, []).append(f)
+    seen: set[tuple] = set()
+    for f in result.findings:  # two critics may report one problem in the same words
+        key = (f.code, f.step, f.message)
+        if key not in seen:
+            seen.add(key)
+            groups.setdefault(f.step, []).append(f)
     for step in sorted(groups, key=lambda s: (s is None, s or 0)):
         lines.append("")
         if step is None:
@@ -93,8 +119,8 @@ def render_check(result: CheckResult, plan: Plan, *, domain: str, problem: str,
             lines.extend(_hints(f))
     lines.append("")
     if result.passed:
-        lines.append("ACCEPTED: every step applies and the goal holds in the final state.")
+        lines.append("ACCEPTED: every sound critic passed the plan.")
     else:
-        total = len(result.findings)
+        total = len(seen)
         lines.append(f"REJECTED: {total} finding{'s' if total != 1 else ''}.")
     return "\n".join(lines) + "\n"

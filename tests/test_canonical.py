@@ -297,3 +297,4 @@ def test_fast_writer_escapes_every_control_character_like_the_slow_one():
         fast: list[str] = []
         c._fast(s, fast)
         assert fast[0] == c._string(s, "")
+

@@ -967,3 +967,19 @@ def test_one_megabyte_problem_parses():
     assert n_values > 15_000
     assert len(p.objects) == 3002
     assert not math.isnan(sum(p.init_fluents.values()))
+
+
+def test_a_timed_value_is_no_second_initial_value():
+    # Source: PDDL2.2 (Edelkamp & Hoffmann 2004): a timed initial literal happens at its
+    # time; a numeric one sets the fluent then, after its initial value. Written from memory.
+    from plansieve.critics.pddl import parse_domain, parse_problem
+    d = parse_domain("""(define (domain tank)
+      (:requirements :numeric-fluents :timed-initial-literals :durative-actions)
+      (:functions (diesel))
+      (:action idle :parameters () :precondition (>= (diesel) 0) :effect (and)))""")
+    p = parse_problem("""(define (problem refill) (:domain tank)
+      (:init (= (diesel) 40) (at 3 (= (diesel) 4)))
+      (:goal (>= (diesel) 0)))""", d)
+    assert p.init_fluents[("diesel",)] == 40
+    (til,) = p.timed_literals
+    assert til.time == 3 and til.effect.value.value == 4

@@ -21,6 +21,7 @@
          (= (lane-length east-stack west-stack) 3) (= (lane-length west-stack east-stack) 3)
          (= (lane-length west-stack north-berth) 7) (= (lane-length north-berth west-stack) 7)
          (= (charge carrier-7) 20)
+         (= (elapsed) 0)
          (= (total-cost) 0))
   (:goal (and (stored reefer-12 north-berth) (inspected reefer-12)
               (stored crate-31 north-berth)))
