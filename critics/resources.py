@@ -561,17 +561,18 @@ def _profile(t: _Track) -> ResourceProfile | None:
         idx = range(len(vals))
     if not idx:
         return None
+    values = [float(vals[i]) for i in idx]
     if t.times[0] is None:  # sequential: point i is after step i
-        points = [{"step": i or None, "value": float(vals[i])} for i in idx]
+        steps = [i or None for i in idx]
+        times = [None] * len(values)
     else:
-        points = [{"step": t.steps[i], "time": float(t.times[i]), "value": float(vals[i])}
-                  for i in idx]
-    known = [vals[i] for i in idx]
+        steps = [t.steps[i] for i in idx]
+        times = [float(t.times[i]) for i in idx]
     # validated in one strict call (every number is already a float or an int): much
     # cheaper than building the points one by one
     return ResourceProfile.model_validate({
         "resource": r.name, "label": r.label, "unit": r.unit,
         "floor": None if r.floor is None else float(r.floor),
         "ceiling": None if r.ceiling is None else float(r.ceiling),
-        "points": points, "initial": points[0]["value"], "peak": float(max(known)),
-        "low": float(min(known)), "final": points[-1]["value"]}, strict=True)
+        "steps": steps, "times": times, "values": values, "initial": values[0],
+        "peak": max(values), "low": min(values), "final": values[-1]}, strict=True)

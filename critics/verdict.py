@@ -7,9 +7,9 @@ words. The codes are stable; renaming one is a breaking change.
 
 from __future__ import annotations
 
-from typing import Annotated, Literal, Union
+from typing import Annotated, Literal, NamedTuple, Union
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 
 class _Frozen(BaseModel):
@@ -216,27 +216,46 @@ Finding = Annotated[
 ]
 
 
-class ProfilePoint(_Frozen):
+class ProfilePoint(NamedTuple):
     """A resource's value after a step (sequential plans) or at a time (timed plans)."""
 
-    step: int | None = None  # None for the initial value and for timed literals
-    time: float | None = None
+    step: int | None  # None for the initial value and for timed literals
+    time: float | None
     value: float
 
 
 class ResourceProfile(_Frozen):
-    """How one resource moved through the plan."""
+    """How one resource moved through the plan.
+
+    The points are kept as three columns of equal length (cheap to build and to
+    store for long plans); ``points`` reads them as rows.
+    """
 
     resource: str
     label: str | None = None
     unit: str | None = None
     floor: float | None = None
     ceiling: float | None = None
-    points: list[ProfilePoint]
+    steps: list[int | None] = Field(
+        description="Per point, the step after which it holds; null for the initial value "
+                    "and timed literals.")
+    times: list[float | None] = Field(
+        description="Per point, the plan time (timed plans and clocks); null otherwise.")
+    values: list[float]
     initial: float
     peak: float
     low: float
     final: float
+
+    @model_validator(mode="after")
+    def _columns(self) -> "ResourceProfile":
+        if not len(self.steps) == len(self.times) == len(self.values):
+            raise ValueError("steps, times and values must have one entry per point")
+        return self
+
+    @property
+    def points(self) -> list[ProfilePoint]:
+        return [ProfilePoint(*row) for row in zip(self.steps, self.times, self.values)]
 
 
 class TimelineEntry(_Frozen):
