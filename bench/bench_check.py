@@ -19,10 +19,9 @@ import gc
 import os
 import random
 import sys
-import tempfile
 import time
-import warnings
-from pathlib import Path
+
+from oracle_io import oracle_read, oracle_verdict
 
 from plansieve.critics.model import Task
 from plansieve.critics.pddl import parse_domain, parse_problem
@@ -297,30 +296,14 @@ class Oracle:
     """The reference library's validator, reading the same domain, problem and plan files."""
 
     def __init__(self, problem_text: str, plan_text: str) -> None:
-        import unified_planning.shortcuts as ups
         from unified_planning.engines import SequentialPlanValidator
-        from unified_planning.io import PDDLReader
 
-        ups.get_environment().credits_stream = None  # no banner in the output
-        with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            d, p, pl = (Path(tmp, "domain.pddl"), Path(tmp, "problem.pddl"),
-                        Path(tmp, "walk.plan"))
-            d.write_text(BLOCKS_DOMAIN)
-            p.write_text(problem_text)
-            pl.write_text(plan_text)
-            reader = PDDLReader()
-            self.problem = reader.parse_problem(str(d), str(p))
-            self.read_seconds, self.plan = timed(lambda: reader.parse_plan(self.problem, str(pl)), 1)
+        self.problem, self.plan, self.read_seconds = oracle_read(
+            BLOCKS_DOMAIN, problem_text, plan_text)
         self.validator = SequentialPlanValidator()
 
     def validate(self) -> str:
-        from unified_planning.engines import ValidationResultStatus
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            result = self.validator.validate(self.problem, self.plan)
-        return "valid" if result.status == ValidationResultStatus.VALID else str(result.status)
+        return oracle_verdict(self.validator, self.problem, self.plan)
 
 
 # ---------------------------------------------------------------------------

@@ -19,12 +19,11 @@ from __future__ import annotations
 import math
 import os
 import sys
-import tempfile
 import time
-import warnings
 from pathlib import Path
 
 from bench_check import fmt_s, fmt_us, print_table, row, timed
+from oracle_io import oracle_read, oracle_verdict
 from plansieve.critics.deadlines import DeadlineChecker
 from plansieve.critics.model import Task
 from plansieve.critics.pddl import parse_domain, parse_problem
@@ -105,29 +104,13 @@ class Oracle:
     """The reference library's time-triggered validator on the same files."""
 
     def __init__(self, problem_text: str, plan_text: str) -> None:
-        import unified_planning.shortcuts as ups
         from unified_planning.engines import TimeTriggeredPlanValidator
-        from unified_planning.io import PDDLReader
 
-        ups.get_environment().credits_stream = None
-        with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            d, p, pl = Path(tmp, "d.pddl"), Path(tmp, "p.pddl"), Path(tmp, "plan.txt")
-            d.write_text(COURIER_DOMAIN)
-            p.write_text(problem_text)
-            pl.write_text(plan_text)
-            reader = PDDLReader()
-            self.problem = reader.parse_problem(str(d), str(p))
-            self.plan = reader.parse_plan(self.problem, str(pl))
+        self.problem, self.plan, _ = oracle_read(COURIER_DOMAIN, problem_text, plan_text)
         self.validator = TimeTriggeredPlanValidator()
 
     def validate(self) -> str:
-        from unified_planning.engines import ValidationResultStatus
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            result = self.validator.validate(self.problem, self.plan)
-        return "valid" if result.status == ValidationResultStatus.VALID else str(result.reason)
+        return oracle_verdict(self.validator, self.problem, self.plan, reason=True)
 
 
 def bench_against_oracle(rounds: int = 3) -> None:

@@ -22,12 +22,10 @@ from __future__ import annotations
 import os
 import random
 import sys
-import tempfile
 import time
-import warnings
-from pathlib import Path
 
 from bench_check import fmt_s, fmt_us, print_table, row, timed
+from oracle_io import oracle_read, oracle_verdict
 
 from plansieve.critics.model import Task
 from plansieve.critics.pddl import parse_domain, parse_problem
@@ -92,21 +90,9 @@ class Oracle:
     """The reference library's validator on the same domain, problem and plan files."""
 
     def __init__(self, problem_text: str, plan_text: str) -> None:
-        import unified_planning.shortcuts as ups
         from unified_planning.engines import SequentialPlanValidator
-        from unified_planning.io import PDDLReader
 
-        ups.get_environment().credits_stream = None  # no banner in the output
-        with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            d, p, pl = (Path(tmp, "domain.pddl"), Path(tmp, "problem.pddl"),
-                        Path(tmp, "hops.plan"))
-            d.write_text(DOMAIN)
-            p.write_text(problem_text)
-            pl.write_text(plan_text)
-            reader = PDDLReader()
-            self.problem = reader.parse_problem(str(d), str(p))
-            self.plan = reader.parse_plan(self.problem, str(pl))
+        self.problem, self.plan, _ = oracle_read(DOMAIN, problem_text, plan_text)
         self.invariants = len(self.problem.state_invariants)
         self.validator = SequentialPlanValidator()
         # Its kind check refuses problems with trajectory constraints up front; with the
@@ -114,12 +100,7 @@ class Oracle:
         self.validator.skip_checks = True
 
     def validate(self) -> str:
-        from unified_planning.engines import ValidationResultStatus
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            result = self.validator.validate(self.problem, self.plan)
-        return "valid" if result.status == ValidationResultStatus.VALID else str(result.status)
+        return oracle_verdict(self.validator, self.problem, self.plan)
 
 
 def load(problem_text: str) -> Task:

@@ -31,7 +31,8 @@ class _Parser(argparse.ArgumentParser):
 def build_parser() -> argparse.ArgumentParser:
     top = _Parser(
         prog="plansieve",
-        description="Check plans against a PDDL model with sound critics.",
+        description="Check plans against a PDDL model with sound critics, alone (check) or "
+                    "in a generate-and-test loop with a guesser (run).",
         epilog=CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -42,9 +43,11 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser(
         "check",
         help="check one plan against a domain and problem (no loop)",
-        description="Run the plan simulator on PLAN: every step must be applicable in "
-                    "turn and the goal must hold at the end. PLAN is a plan file "
-                    "(one '(action arg ...)' a line) or a JSON step list.",
+        description="Judge PLAN with the critics the task calls for: the plan simulator "
+                    "(every step applicable in turn, the goal true at the end), and when the "
+                    "task has resource bounds or time in it, the resource counter and the "
+                    "deadline checker. PLAN is a plan file (one '(action arg ...)' a line, "
+                    "optionally 'time: (action arg ...) [duration]') or a JSON step list.",
         epilog=CAUTION + "\n\nexit codes: 0 valid, 1 not valid, 2 unreadable input or usage error",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
