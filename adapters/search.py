@@ -798,6 +798,10 @@ def greedy_search(task: Task, heuristic: str = "ff", node_limit: int = 50_000, s
     also = ("; left out: " + "; ".join(reach.unsupported)) if reach.unsupported else ""
     # with durative actions compressed, overlap is never tried: say so
     none = "no plan without overlapping actions exists" if timed else "no plan exists"
+    if task.problem.timed_literals:
+        # what timed initial literals make true is left out of the search, not planned around
+        none = ("no plan found that needs no timed initial literal (the local guesser "
+                "does not plan around time windows)")
     if reach.goal_blocked:
         return SearchResult(None, timed=timed, separation=sep,
                             reason=f"{none}: {reach.goal_blocked}{also}")
