@@ -51,7 +51,7 @@ from plansieve.critics.happenings import schedule
 from plansieve.critics.grounding import Calc, GroundAction, Universe, conjuncts, exact, \
     ground_formula
 from plansieve.critics.limits import fluent_key
-from plansieve.critics.model import And, Compare, Forall, Not, Or, Preference, Task, Trajectory
+from plansieve.critics.model import And, Compare, Not, Or, Task
 from plansieve.critics.plan import Plan
 from plansieve.critics.state import DivisionByZero, EffectClash, Undefined, apply, value
 from plansieve.critics.verdict import DivisionByZero as DivisionByZeroFinding
@@ -131,18 +131,13 @@ def bound_of(c: Compare) -> Resource | None:
     return Resource(left, floor=limit, ceiling=limit)
 
 
-def _from_constraints(f, sub: dict, universe: Universe, out: list[Resource]) -> None:
-    """Walk a ``:constraints`` formula, grounding ``forall`` and reading each ``always``."""
-    if f is None:
-        return
-    if isinstance(f, And):
-        for p in f.parts:
-            _from_constraints(p, sub, universe, out)
-    elif isinstance(f, Forall):
-        for b in universe.bindings(f.params):
-            _from_constraints(f.body, {**sub, **b}, universe, out)
-    elif isinstance(f, Trajectory) and f.op == "always":
-        for g in f.formulas:
+def _from_constraints(f, universe: Universe, out: list[Resource]) -> None:
+    """The bounds in each ``always`` of a ``:constraints`` formula, ``forall``s ground."""
+    from plansieve.critics.trajectory import trajectories
+    for traj, sub in trajectories(f, universe):
+        if traj.op != "always":
+            continue
+        for g in traj.formulas:
             try:
                 ground = ground_formula(g, sub, universe)
             except TypeError:  # a nested modal or preference: not a resource bound
@@ -152,8 +147,6 @@ def _from_constraints(f, sub: dict, universe: Universe, out: list[Resource]) -> 
                     r = bound_of(c)
                     if r is not None:
                         out.append(r)
-    elif isinstance(f, Preference):
-        return  # soft: a plan may violate a preference and still be valid
 
 
 def resources_of(task: Task, universe: Universe | None = None) -> list[Resource]:
@@ -167,8 +160,8 @@ def resources_of(task: Task, universe: Universe | None = None) -> list[Resource]
                 None if r.floor is None else exact(r.floor),
                 None if r.ceiling is None else exact(r.ceiling),
                 unit=r.unit, label=r.label))
-    _from_constraints(task.domain.constraints, {}, universe, found)
-    _from_constraints(task.problem.constraints, {}, universe, found)
+    _from_constraints(task.domain.constraints, universe, found)
+    _from_constraints(task.problem.constraints, universe, found)
     merged: dict[tuple, Resource] = {}
     for r in found:
         merged[r.key] = merged[r.key].merged(r) if r.key in merged else r

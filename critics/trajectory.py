@@ -71,35 +71,36 @@ class Ground:
     text: str  # as PDDL, ground
 
 
+def trajectories(constraints, universe: Universe, sub: dict | None = None):
+    """Each trajectory constraint of a ``:constraints`` formula, with the bindings of the
+    ``forall``s around it. A preference is soft (PDDL3): it and what it wraps are skipped."""
+    f, sub = constraints, sub or {}
+    if isinstance(f, And):
+        for p in f.parts:
+            yield from trajectories(p, universe, sub)
+    elif isinstance(f, Forall):
+        for b in universe.bindings(f.params):
+            yield from trajectories(f.body, universe, {**sub, **b})
+    elif isinstance(f, Trajectory):
+        yield f, sub
+
+
 def collect(constraints, universe: Universe) -> list[Ground]:
     """The hard, non-resource trajectory constraints in a ``:constraints`` formula, ground."""
     out: list[Ground] = []
-    _walk(constraints, {}, universe, out)
-    return out
-
-
-def _walk(f, sub: dict, universe: Universe, out: list[Ground]) -> None:
-    if f is None:
-        return
-    if isinstance(f, And):
-        for p in f.parts:
-            _walk(p, sub, universe, out)
-    elif isinstance(f, Forall):
-        for b in universe.bindings(f.params):
-            _walk(f.body, {**sub, **b}, universe, out)
-    elif isinstance(f, Trajectory):
+    for f, sub in trajectories(constraints, universe):
         if any(_has_preference(g) for g in f.formulas):
-            return  # a soft part inside: the whole constraint is soft
+            continue  # a soft part inside: the whole constraint is soft
         formulas = tuple(ground_formula(g, sub, universe) for g in f.formulas)
         if f.op == "always":
             rest = [c for c in conjuncts(formulas[0]) if not is_resource_bound(c)]
             if not rest:
-                return
+                continue
             formulas = (rest[0] if len(rest) == 1 else And(tuple(rest)),)
         times = tuple(exact(t) for t in f.times)
         shown = Trajectory(f.op, formulas, f.times)
         out.append(Ground(f.op, formulas, times, render.formula(shown)))
-    # Preference (soft) and anything else: not judged here
+    return out
 
 
 def _has_preference(f) -> bool:

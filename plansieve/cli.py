@@ -129,24 +129,22 @@ def _positive_int(text: str) -> int:
     return n
 
 
-def _positive_float(text: str) -> float:
+def _float_where(text: str, fits, expected: str) -> float:
     try:
         x = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
-    if not x > 0 or x == float("inf"):
-        raise argparse.ArgumentTypeError(f"expected a positive finite number, got {text}")
+        x = None
+    if x is None or not fits(x):
+        raise argparse.ArgumentTypeError(f"expected {expected}, got {text!r}")
     return x
+
+
+def _positive_float(text: str) -> float:
+    return _float_where(text, lambda x: 0 < x < float("inf"), "a positive finite number")
 
 
 def _rate(text: str) -> float:
-    try:
-        x = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text!r}") from None
-    if not 0 <= x <= 1:
-        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text}")
-    return x
+    return _float_where(text, lambda x: 0 <= x <= 1, "a number from 0 to 1")
 
 
 def _critic_list(text: str) -> list[str]:
