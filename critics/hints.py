@@ -29,9 +29,16 @@ def _walk(effects):
 
 
 class HintIndex:
-    """Built once per domain; answers in time proportional to the schemas that match."""
+    """Built once per domain; answers in time proportional to the schemas that match.
+
+    Answers are remembered per ground atom or fluent (a loop asks about the same
+    failing conditions round after round); callers get a fresh list each time.
+    """
+
+    _MEMO_LIMIT = 4096
 
     def __init__(self, domain: Domain) -> None:
+        self._memo: dict[tuple, list[Hint]] = {}
         self.adders: dict[str, list] = {}
         self.deleters: dict[str, list] = {}
         self.changers: dict[str, list] = {}
@@ -69,15 +76,25 @@ class HintIndex:
                 out.append(Hint(action=schema.name, args=bound, effect=render.effect(e)))
         return out
 
+    def _remembered(self, memo_key: tuple, compute) -> list[Hint]:
+        got = self._memo.get(memo_key)
+        if got is None:
+            if len(self._memo) >= self._MEMO_LIMIT:
+                self._memo.clear()
+            got = self._memo[memo_key] = compute()
+        return list(got)
+
     def for_atom(self, key: tuple, want_true: bool) -> list[Hint]:
         table = self.adders if want_true else self.deleters
-        return self._from(table, key[0], tuple(key[1:]), lambda e: e.atom.args)
+        return self._remembered(("atom", key, want_true), lambda: self._from(
+            table, key[0], tuple(key[1:]), lambda e: e.atom.args))
 
     def for_fluent(self, key: tuple, direction: int) -> list[Hint]:
         def helps(e: Assign) -> bool:
             d = _DIRECTION[e.op]
             return direction == 0 or d == 0 or d == direction
-        return self._from(self.changers, key[0], tuple(key[1:]), lambda e: e.fluent.args, helps)
+        return self._remembered(("fluent", key, direction), lambda: self._from(
+            self.changers, key[0], tuple(key[1:]), lambda e: e.fluent.args, helps))
 
     def for_condition(self, f, want_true: bool = True) -> list[Hint]:
         """Hints for a ground formula that came out false (or true, under a ``not``)."""
