@@ -93,7 +93,11 @@ def _fast(obj: Any, out: list[str]) -> None:
                 out.append(",")
             out.append(_encode_str(k))
             out.append(":")
-            _fast(obj[k], out)
+            v = obj[k]
+            if type(v) is str and v.isascii():  # the commonest leaf, written in place
+                out.append(_encode_str(v))
+            else:
+                _fast(v, out)
         out.append("}")
     elif t is list or t is tuple:
         out.append("[")
@@ -103,7 +107,10 @@ def _fast(obj: Any, out: list[str]) -> None:
                 first = False
             else:
                 out.append(",")
-            _fast(item, out)
+            if type(item) is str and item.isascii():
+                out.append(_encode_str(item))
+            else:
+                _fast(item, out)
         out.append("]")
     elif obj is None:
         out.append("null")
