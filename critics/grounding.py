@@ -86,10 +86,16 @@ class Universe:
                 ancestors[t] = frozenset(out)
             return ancestors[t]
 
-        self.kinds: dict[str, frozenset[str]] = {
-            o: frozenset().union(*(up(t) for t in ts)) if ts else frozenset({"object"})
-            for o, ts in self.objects.items()
-        }
+        by_types: dict[tuple[str, ...], frozenset[str]] = {}  # objects share few type lists
+
+        def kinds_of(ts: tuple[str, ...]) -> frozenset[str]:
+            got = by_types.get(ts)
+            if got is None:
+                got = by_types[ts] = (frozenset().union(*(up(t) for t in ts)) if ts
+                                      else frozenset({"object"}))
+            return got
+
+        self.kinds: dict[str, frozenset[str]] = {o: kinds_of(ts) for o, ts in self.objects.items()}
         self._of_types: dict[tuple[str, ...], tuple[str, ...]] = {}
         self._of_types_set: dict[tuple[str, ...], frozenset[str]] = {}
 
