@@ -110,3 +110,45 @@ def test_console_script_runs_as_a_process():
          "-"], input=(HARBOUR / "plan-good.plan").read_text(), capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     assert "ACCEPTED" in proc.stdout
+
+
+LIMITS = str(HARBOUR / "limits.toml")
+
+
+def test_limits_bring_in_the_resource_counter_and_deadline_checker(capsys):
+    # The demo's own plans: worked by hand in examples/harbour. The over-budget plan spends
+    # 4+6+7+3+4+6 = 30 on lanes, 9 on handling, 4 on two inspections and 3 on a recharge:
+    # 44 after its 16th step against a ceiling of 42 credits.
+    code, out, _ = cli(capsys, "check", "--domain", DOMAIN, "--problem", PROBLEM,
+                       "--limits", LIMITS, str(HARBOUR / "plan-over-budget.plan"))
+    assert code == 1
+    assert "resource-counter 1.0 (sound): FAIL" in out and "deadline-checker" in out
+    assert "crosses its ceiling after step 16" in out
+    assert "rises to 44 credits after step 16" in out
+    # The late plan inspects reefer-12 at 45 minutes on the shift clock: 20 after 25.
+    code, out, _ = cli(capsys, "check", "--json", "--domain", DOMAIN, "--problem", PROBLEM,
+                       "--limits", LIMITS, str(HARBOUR / "plan-late.plan"))
+    assert code == 1
+    doc = json.loads(out)
+    by_critic = {v["critic"]: v for v in doc["verdicts"]}
+    (entry,) = by_critic["deadline-checker"]["timeline"]
+    assert (entry["deadline"], entry["reached_at"], entry["met"]) == (25, 45, False)
+    (missed,) = by_critic["deadline-checker"]["findings"]
+    assert missed["code"] == "deadline-missed" and missed["late_by"] == 20
+    profiles = {p["resource"]: p for p in by_critic["resource-counter"]["profiles"]}
+    assert profiles["(total-cost)"]["final"] == 41
+
+
+def test_critics_option_picks_the_critics(capsys):
+    code, out, _ = cli(capsys, "check", "--domain", DOMAIN, "--problem", PROBLEM,
+                       "--limits", LIMITS, "--critics", "plan-simulator",
+                       str(HARBOUR / "plan-late.plan"))
+    assert code == 0 and "deadline-checker" not in out
+
+
+def test_a_bad_limits_file_names_file_and_field(capsys, tmp_path):
+    bad = tmp_path / "limits.toml"
+    bad.write_text('[[resource]]\nfluent = "(charge carrier-9)"\nfloor = 3\n')
+    code, _, err = cli(capsys, "check", "--domain", DOMAIN, "--problem", PROBLEM,
+                       "--limits", str(bad), str(HARBOUR / "plan-good.plan"))
+    assert code == 2 and "limits.toml (at resource[0].fluent)" in err and "carrier-9" in err
