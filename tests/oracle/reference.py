@@ -230,21 +230,26 @@ class ReferenceProblem:
         into action costs (``total-cost``) are not part of its state and so do
         not appear.
         """
-        atoms: set[tuple[str, ...]] = set()
-        numbers: dict[tuple[str, ...], Fraction] = {}
-        for fluent in self.problem.fluents:
-            for fe in get_all_fluent_exp(self.problem, fluent):
-                try:
-                    v = state.get_value(fe)
-                except UPException:  # undefined numeric fluent
-                    continue
-                key = (fluent.name.lower(), *(str(a).lower() for a in fe.args))
-                if fluent.type.is_bool_type():
-                    if v.bool_constant_value():
-                        atoms.add(key)
-                else:
-                    numbers[key] = Fraction(v.constant_value())
-        return atoms, numbers
+        return state_facts(self.problem, state)
+
+
+def state_facts(problem, state) -> tuple[set[tuple[str, ...]], dict[tuple[str, ...], Fraction]]:
+    """The true ground atoms and defined numeric fluents of one of the library's states."""
+    atoms: set[tuple[str, ...]] = set()
+    numbers: dict[tuple[str, ...], Fraction] = {}
+    for fluent in problem.fluents:
+        for fe in get_all_fluent_exp(problem, fluent):
+            try:
+                v = state.get_value(fe)
+            except UPException:  # undefined numeric fluent
+                continue
+            key = (fluent.name.lower(), *(str(a).lower() for a in fe.args))
+            if fluent.type.is_bool_type():
+                if v.bool_constant_value():
+                    atoms.add(key)
+            else:
+                numbers[key] = Fraction(v.constant_value())
+    return atoms, numbers
 
 
 def _by_lower_name(items: Iterable) -> dict:

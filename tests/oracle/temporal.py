@@ -40,7 +40,7 @@ from unified_planning.engines import TimeTriggeredPlanValidator, ValidationResul
 from unified_planning.exceptions import UPException
 from unified_planning.io import PDDLReader
 from unified_planning.model import DurativeAction
-from unified_planning.model.fluent import get_all_fluent_exp
+from oracle.reference import state_facts
 from unified_planning.model.walkers import StateEvaluator
 from unified_planning.plans import ActionInstance, TimeTriggeredPlan
 
@@ -115,19 +115,7 @@ class TemporalReference:
         return got
 
     def facts(self, state) -> tuple[frozenset, dict]:
-        atoms, numbers = set(), {}
-        for fluent in self.problem.fluents:
-            for fe in get_all_fluent_exp(self.problem, fluent):
-                try:
-                    v = state.get_value(fe)
-                except UPException:
-                    continue
-                key = (fluent.name.lower(), *(str(a).lower() for a in fe.args))
-                if fluent.type.is_bool_type():
-                    if v.bool_constant_value():
-                        atoms.add(key)
-                else:
-                    numbers[key] = Fraction(v.constant_value())
+        atoms, numbers = state_facts(self.problem, state)
         return frozenset(atoms), numbers
 
     # -- what a scheduler may try ----------------------------------------------
