@@ -14,21 +14,7 @@ from dataclasses import dataclass
 
 from pydantic import BaseModel, ConfigDict, Field
 
-
-class Spent(BaseModel):
-    """What a run has used so far."""
-
-    model_config = ConfigDict(extra="forbid")
-
-    rounds: int = 0  # guesser calls started
-    seconds: float = 0.0
-    input_tokens: int = 0
-    output_tokens: int = 0
-    cost: float = 0.0
-
-    @property
-    def tokens(self) -> int:
-        return self.input_tokens + self.output_tokens
+from plansieve.loop.events import Totals
 
 
 class Prices(BaseModel):
@@ -46,11 +32,11 @@ class Prices(BaseModel):
 class Budget:
     """A limit on a run. Subclasses say when they are used up."""
 
-    def used_up(self, spent: Spent) -> "Budget | None":
+    def used_up(self, spent: Totals) -> "Budget | None":
         """The limit that is used up, or None while there is room for another call."""
         raise NotImplementedError
 
-    def seconds_left(self, spent: Spent) -> float:
+    def seconds_left(self, spent: Totals) -> float:
         return math.inf
 
     def limits(self) -> list["Budget"]:
@@ -90,8 +76,8 @@ class at_most_rounds(_Limit):
         if int(self.value) != self.value:
             raise ValueError(f"a rounds limit must be a whole number, not {self.value!r}")
 
-    def used_up(self, spent: Spent) -> Budget | None:
-        return self if spent.rounds >= self.value else None
+    def used_up(self, spent: Totals) -> Budget | None:
+        return self if spent.guesser_calls >= self.value else None
 
 
 class at_most_seconds(_Limit):
@@ -99,10 +85,10 @@ class at_most_seconds(_Limit):
 
     kind = "seconds"
 
-    def used_up(self, spent: Spent) -> Budget | None:
+    def used_up(self, spent: Totals) -> Budget | None:
         return self if spent.seconds >= self.value else None
 
-    def seconds_left(self, spent: Spent) -> float:
+    def seconds_left(self, spent: Totals) -> float:
         return max(0.0, self.value - spent.seconds)
 
 
@@ -111,7 +97,7 @@ class at_most_tokens(_Limit):
 
     kind = "tokens"
 
-    def used_up(self, spent: Spent) -> Budget | None:
+    def used_up(self, spent: Totals) -> Budget | None:
         return self if spent.tokens >= self.value else None
 
 
@@ -120,7 +106,7 @@ class at_most_cost(_Limit):
 
     kind = "cost"
 
-    def used_up(self, spent: Spent) -> Budget | None:
+    def used_up(self, spent: Totals) -> Budget | None:
         return self if spent.cost >= self.value else None
 
 
@@ -130,14 +116,14 @@ class AnyOf(Budget):
 
     parts: tuple[Budget, ...]
 
-    def used_up(self, spent: Spent) -> Budget | None:
+    def used_up(self, spent: Totals) -> Budget | None:
         for p in self.parts:
             hit = p.used_up(spent)
             if hit is not None:
                 return hit
         return None
 
-    def seconds_left(self, spent: Spent) -> float:
+    def seconds_left(self, spent: Totals) -> float:
         return min((p.seconds_left(spent) for p in self.parts), default=math.inf)
 
     def limits(self) -> list[Budget]:

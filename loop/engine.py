@@ -23,7 +23,7 @@ from plansieve.adapters.guesser import Attempt, Guess, Guesser, GuesserFailed, G
 from plansieve.critics.model import Task
 from plansieve.critics.plan import Plan
 from plansieve.critics.protocol import Critic
-from plansieve.loop.budget import Budget, Prices, Spent, at_most_rounds
+from plansieve.loop.budget import Budget, Prices, at_most_rounds
 from plansieve.loop.chain import CriticChain, Link
 from plansieve.loop.events import (
     BudgetLimit, CriticRef, FeedbackGiven, GuessAsked, GuesserRef, GuessFailed, GuessReceived,
@@ -71,7 +71,9 @@ class _Run:
         self.budget, self.trace, self.task_id, self.seed = budget, trace, task_id, seed
         self.prices, self.on_round, self.settings = prices, on_round, settings
         self.run_id = getattr(trace, "run_id", None) or uuid.uuid4().hex
-        self.spent = Spent()
+        # what the run has used so far; ``totals()`` reads it with the time
+        self.calls = self.input_tokens = self.output_tokens = 0
+        self.cost = 0.0
         self.history: list[Attempt] = []
         self.summaries: list[RoundSummary] = []
         self.started = time.monotonic()
@@ -82,14 +84,10 @@ class _Run:
         if self.trace is not None:
             self.trace.emit(event)
 
-    def clock(self) -> float:
-        self.spent.seconds = time.monotonic() - self.started
-        return self.spent.seconds
-
     def totals(self) -> Totals:
-        s = self.spent
-        return Totals(guesser_calls=s.rounds, input_tokens=s.input_tokens,
-                      output_tokens=s.output_tokens, cost=s.cost, seconds=self.clock())
+        return Totals(guesser_calls=self.calls, input_tokens=self.input_tokens,
+                      output_tokens=self.output_tokens, cost=self.cost,
+                      seconds=time.monotonic() - self.started)
 
     def finish(self, stop: str, detail: str, plan: Plan | None = None) -> Outcome:
         verified = stop == "verified"
@@ -112,13 +110,13 @@ class _Run:
 
     async def ask(self, number: int) -> Guess | Outcome:
         """The guesser's answer, or the outcome that ends the run instead."""
+        left = self.budget.seconds_left(self.totals())
         request = GuessRequest(task=self.task, round=number, history=tuple(self.history),
                                task_id=self.task_id, settings=self.settings,
-                               deadline=self._deadline())
+                               deadline=None if math.isinf(left) else time.monotonic() + left)
         self.emit(GuessAsked(round=number, feedback=request.feedback,
                              history=len(self.history), settings=self.settings))
-        self.spent.rounds += 1
-        left = self.budget.seconds_left(self.spent)
+        self.calls += 1
         try:
             if math.isinf(left):
                 return await self.guesser.guess(request)
@@ -136,26 +134,20 @@ class _Run:
         self.emit(GuessFailed(round=number, attempt=1, reason=reason, retry=False))
         return self.finish("guesser-failed", reason)
 
-    def _deadline(self) -> float | None:
-        left = self.budget.seconds_left(self.spent)
-        return None if math.isinf(left) else time.monotonic() + left
-
     def charge(self, usage: Usage) -> Usage:
         if not usage.cost and self.prices is not None:
             usage = usage.model_copy(
                 update={"cost": self.prices.cost(usage.input_tokens, usage.output_tokens)})
-        s = self.spent
-        s.input_tokens += usage.input_tokens
-        s.output_tokens += usage.output_tokens
-        s.cost += usage.cost
+        self.input_tokens += usage.input_tokens
+        self.output_tokens += usage.output_tokens
+        self.cost += usage.cost
         return usage
 
     async def go(self) -> Outcome:
         self.start()
         number = 0
         while True:
-            self.clock()
-            hit = self.budget.used_up(self.spent)
+            hit = self.budget.used_up(self.totals())
             if hit is not None:
                 return self.finish(hit.kind, f"the {hit.kind} budget of {hit.value:g} was used "
                                              f"up after {len(self.summaries)} round(s)")
