@@ -649,6 +649,14 @@ class Relaxation:
 # The search
 
 
+def _true(f, atoms, fluents) -> bool:
+    """Whether a ground condition holds; one that cannot be computed counts as false."""
+    try:
+        return holds(f, atoms, fluents)
+    except (Undefined, DivisionByZero):
+        return False
+
+
 class _Limits:
     """The task's limits file as pruning rules: a state that already breaks a resource
     bound, or passes a deadline on the clock with its condition false, leads nowhere
@@ -688,12 +696,8 @@ class _Limits:
         if self.deadlines:
             now = fluents.get(self.clock)
             for by, cond in self.deadlines:
-                if now is not None and now > by:
-                    try:
-                        if not holds(cond, atoms, fluents):
-                            return False
-                    except (Undefined, DivisionByZero):
-                        return False
+                if now is not None and now > by and not _true(cond, atoms, fluents):
+                    return False
         return True
 
 
@@ -716,26 +720,14 @@ class _Search:
     def goal_reached(self, atoms, fluents) -> bool:
         if not self.reach.goal_set <= atoms:
             return False
-        for g in self.reach.goal_other:
-            try:
-                if not holds(g, atoms, fluents):
-                    return False
-            except (Undefined, DivisionByZero):
-                return False
-        return True
+        return all(_true(g, atoms, fluents) for g in self.reach.goal_other)
 
     def evaluate(self, atoms, fluents) -> float:
         h = self.h(self.relax.state_ids(atoms))
         if h == INF:
             return INF
-        for g in self.reach.goal_other:
-            try:
-                ok = holds(g, atoms, fluents)
-            except (Undefined, DivisionByZero):
-                ok = False
-            if not ok:
-                h += 1
-        return h
+        # each goal condition the relaxation cannot see that is false adds one
+        return h + sum(not _true(g, atoms, fluents) for g in self.reach.goal_other)
 
     def successors(self, atoms, fluents):
         reach = self.reach
