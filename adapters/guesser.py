@@ -8,6 +8,7 @@ plan: a local search, a scripted list and a model server behind HTTP all fit.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any, Protocol, runtime_checkable
 
@@ -45,6 +46,8 @@ class Guess(BaseModel):
     text: str
     usage: Usage = Usage()
     prompt: str | None = None
+    # which try of the round gave the answer (>1 after retries)
+    attempt: int = 1
 
 
 @dataclass(frozen=True)
@@ -63,6 +66,20 @@ class Attempt:
 
 
 @dataclass(frozen=True)
+class RetryNote:
+    """A failed try within one round that the guesser is about to try again.
+
+    The loop writes it to the trace and charges ``usage`` (what the failed try
+    cost, if anything) to the budget; a retry is not a new round.
+    """
+
+    attempt: int
+    reason: str
+    wait_seconds: float
+    usage: Usage = Usage()
+
+
+@dataclass(frozen=True)
 class GuessRequest:
     """Everything a guesser may use for one round; it must not need anything else."""
 
@@ -75,6 +92,17 @@ class GuessRequest:
     # time.monotonic() value at which the run's time budget ends (None: no time limit);
     # a guesser that waits (retries, back-off) must not wait past it.
     deadline: float | None = None
+    # Where a guesser that retries reports each failed try (the loop sets it).
+    on_retry: Callable[[RetryNote], None] | None = field(default=None, compare=False)
+
+    def retrying(self, note: RetryNote) -> None:
+        """Report a failed try that will be tried again."""
+        if self.on_retry is not None:
+            self.on_retry(note)
+
+    def seconds_left(self, now: float) -> float:
+        """Seconds until the run's time budget ends (infinite without one)."""
+        return float("inf") if self.deadline is None else self.deadline - now
 
     @property
     def feedback(self) -> str:
@@ -96,7 +124,9 @@ class Guesser(Protocol):
 class GuesserFailed(PlansieveError):
     """The guesser could not give an answer (after any retries of its own)."""
 
-    def __init__(self, reason: str, *, guesser: str = "") -> None:
+    def __init__(self, reason: str, *, guesser: str = "", attempt: int = 1) -> None:
         super().__init__(reason)
         self.reason = reason
         self.guesser = guesser
+        # the try of the round that failed last (every earlier one was reported as a retry)
+        self.attempt = attempt

@@ -19,7 +19,9 @@ import uuid
 from collections.abc import Callable, Sequence
 
 from plansieve.adapters.extract import extract_plan
-from plansieve.adapters.guesser import Attempt, Guess, Guesser, GuesserFailed, GuessRequest, Usage
+from plansieve.adapters.guesser import (
+    Attempt, Guess, Guesser, GuesserFailed, GuessRequest, RetryNote, Usage,
+)
 from plansieve.critics.model import Task
 from plansieve.critics.plan import Plan
 from plansieve.critics.protocol import Critic
@@ -111,9 +113,18 @@ class _Run:
     async def ask(self, number: int) -> Guess | Outcome:
         """The guesser's answer, or the outcome that ends the run instead."""
         left = self.budget.seconds_left(self.totals())
+
+        def retrying(note: RetryNote) -> None:
+            # A retry is one more call, not one more round; what it cost counts.
+            self.calls += 1
+            usage = self.charge(note.usage)
+            self.emit(GuessFailed(round=number, attempt=note.attempt, reason=note.reason,
+                                  retry=True, wait_seconds=note.wait_seconds, usage=usage))
+
         request = GuessRequest(task=self.task, round=number, history=tuple(self.history),
                                task_id=self.task_id, settings=self.settings,
-                               deadline=None if math.isinf(left) else time.monotonic() + left)
+                               deadline=None if math.isinf(left) else time.monotonic() + left,
+                               on_retry=retrying)
         self.emit(GuessAsked(round=number, feedback=request.feedback,
                              history=len(self.history), settings=self.settings))
         self.calls += 1
@@ -126,12 +137,12 @@ class _Run:
             return self.finish("seconds", f"the time budget of {limit.value:g} s ran out "
                                           f"while waiting for round {number}'s answer")
         except GuesserFailed as e:
-            reason = e.reason
+            reason, attempt = e.reason, e.attempt
         except asyncio.CancelledError:
             raise
         except Exception as e:  # a guesser's own bug still ends the run cleanly
-            reason = f"the guesser raised {type(e).__name__}: {e}"
-        self.emit(GuessFailed(round=number, attempt=1, reason=reason, retry=False))
+            reason, attempt = f"the guesser raised {type(e).__name__}: {e}", 1
+        self.emit(GuessFailed(round=number, attempt=attempt, reason=reason, retry=False))
         return self.finish("guesser-failed", reason)
 
     def charge(self, usage: Usage) -> Usage:
@@ -158,7 +169,7 @@ class _Run:
                 return answer
             usage = self.charge(answer.usage)
             self.emit(GuessReceived(round=number, text=answer.text, usage=usage,
-                                    prompt=answer.prompt))
+                                    prompt=answer.prompt, attempt=answer.attempt))
             result = self.judge(number, answer.text, usage, round_started)
             if result is not None:
                 return result

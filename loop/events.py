@@ -175,6 +175,7 @@ class GuessReceived(BaseEvent):
     text: str
     usage: Usage = Usage()
     prompt: str | None = None
+    attempt: int = Field(1, ge=1, description="Which try of the round gave the answer.")
 
 
 class GuessFailed(BaseEvent):
@@ -186,6 +187,7 @@ class GuessFailed(BaseEvent):
     reason: str
     retry: bool
     wait_seconds: float | None = Field(None, ge=0)
+    usage: Usage = Usage()
 
 
 class PlanRead(BaseEvent):
