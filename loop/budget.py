@@ -67,7 +67,7 @@ class _Limit(Budget):
 
 
 class at_most_rounds(_Limit):
-    """Stop after this many guesser calls."""
+    """Stop after this many rounds; a guesser's retries within a round do not count."""
 
     kind = "rounds"
 
@@ -77,7 +77,7 @@ class at_most_rounds(_Limit):
             raise ValueError(f"a rounds limit must be a whole number, not {self.value!r}")
 
     def used_up(self, spent: Totals) -> Budget | None:
-        return self if spent.guesser_calls >= self.value else None
+        return self if spent.rounds >= self.value else None
 
 
 class at_most_seconds(_Limit):

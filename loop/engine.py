@@ -74,7 +74,7 @@ class _Run:
         self.prices, self.on_round, self.settings = prices, on_round, settings
         self.run_id = getattr(trace, "run_id", None) or uuid.uuid4().hex
         # what the run has used so far; ``totals()`` reads it with the time
-        self.calls = self.input_tokens = self.output_tokens = 0
+        self.rounds = self.calls = self.input_tokens = self.output_tokens = 0
         self.cost = 0.0
         self.history: list[Attempt] = []
         self.summaries: list[RoundSummary] = []
@@ -87,7 +87,7 @@ class _Run:
             self.trace.emit(event)
 
     def totals(self) -> Totals:
-        return Totals(guesser_calls=self.calls, input_tokens=self.input_tokens,
+        return Totals(rounds=self.rounds, guesser_calls=self.calls, input_tokens=self.input_tokens,
                       output_tokens=self.output_tokens, cost=self.cost,
                       seconds=time.monotonic() - self.started)
 
@@ -127,6 +127,7 @@ class _Run:
                                on_retry=retrying)
         self.emit(GuessAsked(round=number, feedback=request.feedback,
                              history=len(self.history), settings=self.settings))
+        self.rounds += 1
         self.calls += 1
         try:
             if math.isinf(left):

@@ -114,7 +114,8 @@ class UnreadLine(_Model):
 class Totals(_Model):
     """What a run used, all rounds together."""
 
-    guesser_calls: int = Field(0, ge=0)
+    rounds: int = Field(0, ge=0, description="Rounds asked of the guesser; retries are not rounds.")
+    guesser_calls: int = Field(0, ge=0, description="Calls made, retried tries included.")
     input_tokens: int = Field(0, ge=0)
     output_tokens: int = Field(0, ge=0)
     cost: float = 0.0

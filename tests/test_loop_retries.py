@@ -84,3 +84,10 @@ def test_replay_reports_the_recorded_retries_again():
     assert replayed.totals.input_tokens == first.totals.input_tokens
     kinds = [(e["kind"], e.get("attempt")) for e in events2 if e["kind"].startswith("guess-")]
     assert kinds == [(e["kind"], e.get("attempt")) for e in events if e["kind"].startswith("guess-")]
+
+
+def test_retries_do_not_use_up_the_rounds_budget():
+    # Three failed tries a round and a two-round budget: both rounds are still asked.
+    outcome, _ = run(Flaky(3, answer="(no plan here)"), budget=at_most_rounds(2))
+    assert outcome.stop == "rounds" and outcome.rounds == 2
+    assert outcome.totals.rounds == 2 and outcome.totals.guesser_calls == 8
