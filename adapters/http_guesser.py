@@ -316,7 +316,7 @@ class HttpGuesser:
             except _Transient as t:
                 t.usage = Usage(seconds=time.monotonic() - started)
                 raise
-            except TimeoutError:
+            except asyncio.TimeoutError:  # not the builtin TimeoutError before 3.11
                 failure = _Transient(EndpointTimedOut(
                     f"no whole answer within {s.timeouts.call:g} s (timeouts.call)",
                     guesser=self.name, attempt=number))

@@ -45,9 +45,10 @@ class Timeouts(_Section):
 class Retries(_Section):
     """How often and how patiently to try again after transient trouble.
 
-    ``attempts`` counts every try of one round, the first included. Waits grow
-    exponentially from ``first_wait`` up to ``longest_wait`` with random jitter
-    added; a server's ``Retry-After`` replaces the computed wait, but a wait longer
+    ``attempts`` counts every try of one round, the first included. Waits double
+    from ``first_wait``, each stretched by a random factor between 1 and
+    ``1 + jitter`` so that loops do not retry in step, and stop growing at
+    ``longest_wait``; a server's ``Retry-After`` replaces the computed wait, but a wait longer
     than ``longest_wait`` or than the time the budget has left is not waited out:
     the round fails at once instead.
     """

@@ -27,22 +27,14 @@ from __future__ import annotations
 
 import dataclasses
 import functools
-import json
-import re
-import sys
 from os import PathLike
-from pathlib import Path
 from typing import Annotated
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, ConfigDict, Field, model_validator
 
+from plansieve.critics.config_text import read_model, read_text_file
 from plansieve.critics.errors import InputError, Spot
 from plansieve.critics.model import Formula, Task
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover - Python 3.10
-    import tomli as tomllib
 
 
 class _Frozen(BaseModel):
@@ -102,101 +94,14 @@ class Limits(_Frozen):
 
 # -- reading the file -------------------------------------------------------------------
 
-_TOML_AT = re.compile(r"\(at line (\d+), column (\d+)\)")
-
-
-def _field_path(loc: tuple) -> str:
-    out = ""
-    for part in loc:
-        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
-    return out
-
-
-def _section_keys(loc: tuple) -> list[str]:
-    """The keys allowed in the section an error's location points into."""
-    names = [p for p in loc[:-1] if isinstance(p, str)]
-    model = {"resource": ResourceLimit, "deadline": DeadlineRule,
-             "time": TimeSettings}.get(names[-1] if names else "", Limits)
-    return list(model.model_fields)
-
-
-# The validation errors a limits file can raise, in our own words.
-_OUR_WORDS = {
-    "missing": "missing; this key is required here",
-    "float_type": "expected a number",
-    "float_parsing": "expected a number",
-    "finite_number": "expected a finite number",
-    "string_type": "expected text in quotes",
-    "greater_than": "expected a number above {gt}",
-    "greater_than_equal": "expected a number of {ge} or more",
-    "model_type": "expected a table",
-    "model_attributes_type": "expected a table",
-    "dict_type": "expected a table",
-}
-
-
-def _message(e: dict) -> str:
-    kind = e["type"]
-    if kind == "tuple_type":
-        name = next((p for p in reversed(e["loc"]) if isinstance(p, str)), "resource")
-        return f"expected a list of tables, each written [[{name}]]"
-    words = _OUR_WORDS.get(kind)
-    if words is None:
-        return e["msg"].removeprefix("Value error, ")
-    return words.format(**{k: f"{v:g}" if isinstance(v, float) else v
-                           for k, v in (e.get("ctx") or {}).items()})
-
-
-def _validation_spots(file: str, err: ValidationError) -> list[Spot]:
-    spots = []
-    for e in err.errors():
-        path = _field_path(tuple(e["loc"]))
-        msg = _message(e)
-        if e["type"] == "extra_forbidden":
-            msg = f"unknown key; expected one of {', '.join(_section_keys(tuple(e['loc'])))}"
-        elif e["type"] != "missing" and not isinstance(e.get("input"), (dict, list)):
-            msg = f"{msg} (got {e['input']!r})"
-        spots.append(Spot(file, None, None, msg, None, path or None))
-    return spots
-
 
 def parse_limits(text: str, filename: str = "<limits>") -> Limits:
     """Read limits from TOML or JSON text (JSON if it starts with ``{``)."""
-    stripped = text.lstrip()
-    try:
-        if stripped.startswith("{"):
-            data = json.loads(text)
-        else:
-            data = tomllib.loads(text)
-    except json.JSONDecodeError as e:
-        raise InputError(Spot(filename, e.lineno, e.colno, f"not valid JSON: {e.msg}",
-                              text.splitlines()[e.lineno - 1] if text.splitlines() else None))
-    except tomllib.TOMLDecodeError as e:
-        m = _TOML_AT.search(str(e))
-        line, col = (int(m.group(1)), int(m.group(2))) if m else (None, None)
-        lines = text.splitlines()
-        shown = lines[line - 1] if line and line <= len(lines) else None
-        raise InputError(Spot(filename, line, col,
-                              f"not valid TOML: {_TOML_AT.sub('', str(e)).strip()}", shown))
-    if not isinstance(data, dict):
-        raise InputError(Spot(filename, None, None,
-                              f"a {type(data).__name__} at the top; expected a table with "
-                              f"'resource', 'deadline' and 'time'"))
-    try:
-        return Limits.model_validate(data)
-    except ValidationError as e:
-        raise InputError(_validation_spots(filename, e)) from None
+    return read_model(Limits, text, filename)
 
 
 def load_limits(path: str | PathLike[str]) -> Limits:
-    name = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(Spot(name, None, None, "no such file")) from None
-    except (OSError, UnicodeDecodeError) as e:
-        raise InputError(Spot(name, None, None, f"cannot read the file: {e}")) from None
-    return parse_limits(text, name)
+    return parse_limits(read_text_file(path), str(path))
 
 
 # -- checking the PDDL pieces against a task ---------------------------------------------

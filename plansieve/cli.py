@@ -3,6 +3,7 @@
 ``check``: 0 the plan is valid, 1 it is not, 2 unreadable input or a usage error.
 ``run``: 0 a plan was verified, 1 the budget ran out first, 2 unreadable input or a
 usage error, 3 the guesser failed.
+``config check``: 0 the configuration file is valid, 2 it is not.
 """
 
 from __future__ import annotations
@@ -10,6 +11,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import textwrap
 
 from plansieve import __version__
 
@@ -20,6 +22,9 @@ vehicles or money, keep the usual human review and engineering safeguards in
 place, and follow local regulations and licensed practice."""
 
 EXIT_VALID, EXIT_INVALID, EXIT_INPUT, EXIT_GUESSER = 0, 1, 2, 3
+
+# read by ``run`` from the current folder when no --config is given
+DEFAULT_CONFIG = "plansieve.toml"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -64,20 +69,31 @@ def build_parser() -> argparse.ArgumentParser:
     run = sub.add_parser(
         "run",
         help="propose plans with a guesser and check them until one is verified",
-        description="The generate-and-test loop: a guesser proposes a plan, the critics "
-                    "check it, their findings go back to the guesser as feedback, and the "
-                    "loop stops at the first plan every sound critic accepts or when the "
-                    "budget runs out. Each round is printed as it happens.",
+        description=_paragraphs(
+            "The generate-and-test loop: a guesser proposes a plan, the critics check it, "
+            "their findings go back to the guesser as feedback, and the loop stops at the "
+            "first plan every sound critic accepts or when the budget runs out. Each round "
+            "is printed as it happens.",
+            f"Settings come from a configuration file: --config FILE, or {DEFAULT_CONFIG} in "
+            "the current folder when it exists and --config is not given (see 'plansieve "
+            "config check'). Options given here override the file; the defaults below apply "
+            "when neither gives a value."),
         epilog=CAUTION + "\n\nexit codes: 0 a plan was verified, 1 the budget ran out first, "
                          "2 unreadable input or usage error, 3 the guesser failed",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    run.add_argument("--domain", required=True, metavar="FILE", help="PDDL domain file")
-    run.add_argument("--problem", required=True, metavar="FILE", help="PDDL problem file")
-    run.add_argument("--guesser", choices=["local"], default="local",
-                     help="who proposes plans: 'local' is the built-in heuristic planner "
-                          "(no network)")
-    run.add_argument("--rounds", type=_positive_int, default=5, metavar="N",
+    run.add_argument("--config", metavar="FILE",
+                     help=f"configuration file (TOML); default: {DEFAULT_CONFIG} in the current "
+                          "folder, if there is one")
+    run.add_argument("--domain", metavar="FILE",
+                     help="PDDL domain file (or [task] domain in the configuration)")
+    run.add_argument("--problem", metavar="FILE",
+                     help="PDDL problem file (or [task] problem in the configuration)")
+    run.add_argument("--guesser", choices=["local", "http"],
+                     help="who proposes plans: 'local' is the built-in heuristic planner (no "
+                          "network, the default); 'http' asks the endpoint in the "
+                          "configuration's [guesser.http] table")
+    run.add_argument("--rounds", type=_positive_int, metavar="N",
                      help="give up after N guesser calls (default 5)")
     run.add_argument("--seconds", type=_positive_float, metavar="S",
                      help="give up after S seconds of wall time")
@@ -85,30 +101,60 @@ def build_parser() -> argparse.ArgumentParser:
                      help="give up once the guesser has used N tokens")
     run.add_argument("--cost", type=_positive_float, metavar="X",
                      help="give up once the guesser calls have cost X")
-    run.add_argument("--feedback", default="all-with-fixes", metavar="LEVEL",
+    run.add_argument("--feedback", metavar="LEVEL",
                      choices=["pass-fail", "first-problem", "all-problems", "all-with-fixes"],
                      help="how much the guesser is told about a rejected plan: pass-fail, "
                           "first-problem, all-problems or all-with-fixes (default)")
-    run.add_argument("--seed", type=int, default=0, metavar="S",
+    run.add_argument("--seed", type=int, metavar="S",
                      help="seed for the local guesser (default 0)")
-    run.add_argument("--mistakes", type=_rate, default=0.0, metavar="RATE",
+    run.add_argument("--mistakes", type=_rate, metavar="RATE",
                      help="local guesser: chance per step of each kind of mistake "
                           "(dropped, swapped, wrong argument, invented step); default 0")
-    run.add_argument("--uptake", type=_rate, default=0.7, metavar="RATE",
+    run.add_argument("--uptake", type=_rate, metavar="RATE",
                      help="local guesser: chance it repairs a problem it is told about "
                           "(default 0.7)")
     run.add_argument("--trace", metavar="FILE",
                      help="write the trace (JSON Lines, hash-chained) to FILE; an HMAC is "
-                          "added when PLANSIEVE_TRACE_KEY is set")
+                          "added when PLANSIEVE_TRACE_KEY (or the configuration's "
+                          "trace.key_env) is set")
     run.add_argument("--plan-out", metavar="FILE", help="write the verified plan to FILE")
-    run.add_argument("--run-all", action="store_true",
+    run.add_argument("--run-all", action="store_true", default=None,
                      help="ask every critic each round, not only up to the first that fails")
     run.add_argument("--show-feedback", action="store_true",
                      help="also print the feedback text sent back after each rejected round")
     run.add_argument("--quiet", action="store_true", help="print only the result")
     _add_task_options(run)
     run.set_defaults(handler=_cmd_run)
+
+    config = sub.add_parser(
+        "config",
+        help="work with a configuration file (check it)",
+        description="Configuration files hold the settings of 'plansieve run' in TOML.",
+        epilog=CAUTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    config_sub = config.add_subparsers(dest="config_command", metavar="ACTION",
+                                       parser_class=_Parser)
+    config_sub.required = True
+    config_check = config_sub.add_parser(
+        "check",
+        help="validate a configuration file without running anything",
+        description="Read FILE, check every key and value, the files it names (task, limits, "
+                    "prompt templates) and the environment variables it refers to, then "
+                    "print the settings in force: defaults filled in, preset shapes spelled "
+                    "out, paths resolved, credentials masked. Nothing is sent anywhere.",
+        epilog=CAUTION + "\n\nexit codes: 0 the file is valid, 2 it is not (or cannot be "
+                         "read)",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    config_check.add_argument("file", metavar="FILE", nargs="?", default=DEFAULT_CONFIG,
+                              help=f"the configuration file (default: {DEFAULT_CONFIG})")
+    config_check.set_defaults(handler=_cmd_config_check)
     return top
+
+
+def _paragraphs(*texts: str) -> str:
+    return "\n\n".join(textwrap.fill(t, 80) for t in texts)
 
 
 def _add_task_options(p: argparse.ArgumentParser) -> None:
@@ -202,9 +248,26 @@ def _cmd_check(args: argparse.Namespace) -> int:
 def _cmd_run(args: argparse.Namespace) -> int:
     import asyncio
 
-    from plansieve.run_cli import run_command
-    task, critics = _load(args)
-    return asyncio.run(run_command(args, task, critics))
+    from plansieve.run_cli import prepare_run, run_command
+    config, task, critics = prepare_run(args)
+    return asyncio.run(run_command(config, task, critics, args))
+
+
+def _cmd_config_check(args: argparse.Namespace) -> int:
+    from plansieve.critics.errors import InputError
+    from plansieve.run_cli import check_config_file
+    try:
+        text, notes = check_config_file(args.file)
+    except InputError as exc:
+        print(f"plansieve: {args.file} is not a valid configuration\n{exc.render()}",
+              file=sys.stderr)
+        return EXIT_INPUT
+    print(f"{args.file}: valid.")
+    for note in notes:
+        print(note)
+    print("\nThe settings in force (defaults filled in, credentials masked):\n")
+    sys.stdout.write(text)
+    return EXIT_VALID
 
 
 def main(argv: list[str] | None = None) -> int:

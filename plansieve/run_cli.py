@@ -1,12 +1,16 @@
-"""``plansieve run``: the loop on one task, printed round by round for a person."""
+"""``plansieve run`` and ``plansieve config check``: settings from the configuration file
+and the command line, then the loop on one task, printed round by round for a person."""
 
 from __future__ import annotations
 
 import argparse
 import os
+import re
 import sys
 import uuid
 
+from plansieve.adapters.config_file import RunConfig
+from plansieve.critics.errors import InputError, PlansieveError, Spot
 from plansieve.critics.model import Task
 from plansieve.loop.outcome import Outcome, RoundSummary
 
@@ -38,30 +42,147 @@ def round_line(s: RoundSummary) -> str:
     return head + f"rejected, {s.steps} steps: {what or 'unreadable lines'}{unread}{by}"
 
 
-def _guesser(args: argparse.Namespace):
-    from plansieve.adapters.heuristic import HeuristicGuesser
-    from plansieve.adapters.mistakes import MistakeRates
-    r = args.mistakes
-    return HeuristicGuesser(seed=args.seed, mistakes=MistakeRates(
-        drop=r, swap=r, wrong_argument=r, invent=r, uptake=args.uptake))
+# -- settings: the configuration file, then the command line over it -------------------------
+
+_LOCAL_FLAGS = (("seed", "--seed"), ("mistakes", "--mistakes"), ("uptake", "--uptake"))
 
 
-def _trace(args: argparse.Namespace):
-    if not args.trace:
-        return None
-    from plansieve.loop.trace import FileSink, TraceWriter, key_from_env
-    return TraceWriter(FileSink(args.trace), run_id=uuid.uuid4().hex, hmac_key=key_from_env())
+def config_for(args: argparse.Namespace) -> RunConfig:
+    """The configuration named by --config, else plansieve.toml here if present, else
+    the defaults."""
+    from plansieve.adapters.config_file import load_config
+    from plansieve.cli import DEFAULT_CONFIG
+    if args.config:
+        return load_config(args.config)
+    if os.path.isfile(DEFAULT_CONFIG):
+        return load_config(DEFAULT_CONFIG)
+    return RunConfig()
 
 
-async def run_command(args: argparse.Namespace, task: Task, critics: list) -> int:
+def apply_flags(config: RunConfig, args: argparse.Namespace) -> RunConfig:
+    """``config`` with every option given on the command line put in its place."""
+    from plansieve.adapters.config_file import MistakeKinds
+
+    def section(part, **changes):
+        changes = {k: v for k, v in changes.items() if v is not None}
+        return part.model_copy(update=changes) if changes else part
+
+    g = config.guesser
+    kind = args.guesser or g.kind
+    if kind == "http":
+        given = [flag for key, flag in _LOCAL_FLAGS if getattr(args, key) is not None]
+        if given:
+            verb = "applies" if len(given) == 1 else "apply"
+            raise PlansieveError(f"{', '.join(given)} only {verb} to the local guesser; the "
+                                 "guesser in use is 'http'")
+        if g.http is None:
+            where = (f"the configuration file {config.source}" if config.source
+                     else "a configuration file (--config FILE)")
+            raise PlansieveError(f"the http guesser needs a [guesser.http] table with its url "
+                                 f"in {where}")
+    mistakes = (MistakeKinds(**{k: args.mistakes for k in MistakeKinds.model_fields})
+                if args.mistakes is not None else None)
+    updated = config.model_copy(update={
+        "task": section(config.task, domain=args.domain, problem=args.problem),
+        "guesser": g.model_copy(update={"kind": kind, "local": section(
+            g.local, seed=args.seed, uptake=args.uptake, mistakes=mistakes)}),
+        "critics": section(config.critics, limits=args.limits, names=args.critics,
+                           run_all=args.run_all),
+        "feedback": section(config.feedback, level=args.feedback),
+        "budget": section(config.budget, rounds=args.rounds, seconds=args.seconds,
+                          tokens=args.tokens, cost=args.cost),
+        "trace": section(config.trace, path=args.trace),
+    })
+    return updated.with_source(config.source)
+
+
+def load_task_of(config: RunConfig) -> tuple[Task, list]:
+    """The task the configuration names, with its limits, and the critics to run on it."""
+    from plansieve.critics.limits import attach_limits, load_limits
+    from plansieve.critics.pddl import load_task
+    from plansieve.critics.select import critics_for
+
+    t = config.task
+    if not t.domain or not t.problem:
+        missing = " and ".join(n for n in ("domain", "problem") if not getattr(t, n))
+        raise PlansieveError(f"no {missing} file: give --domain and --problem, or domain and "
+                             "problem in the [task] table of the configuration file")
+    task = load_task(t.domain, t.problem)
+    limits = config.critics.limits
+    if limits:
+        task = attach_limits(task, load_limits(limits), limits)
+    keep_going = config.feedback.level in ("all-problems", "all-with-fixes")
+    return task, critics_for(task, keep_going=keep_going, names=config.critics.names)
+
+
+def prepare_run(args: argparse.Namespace) -> tuple[RunConfig, Task, list]:
+    config = apply_flags(config_for(args), args)
+    task, critics = load_task_of(config)
+    return config, task, critics
+
+
+_ENV_REF = re.compile(r"(?<!\$)\$\{([A-Za-z_][A-Za-z0-9_]*)\}")
+
+
+def check_config_file(path: str) -> tuple[str, list[str]]:
+    """Everything ``run`` would check before its first round, without running: the file,
+    the files it names, the guesser's set-up and the trace key. Returns the effective
+    settings (masked) and a few notes; raises InputError at the first problem."""
+    from plansieve.adapters.config_file import (
+        effective_text, load_config, make_guesser, trace_key,
+    )
+    from plansieve.critics.limits import load_limits
+
+    config = load_config(path)
+    notes = []
+    t = config.task
+    if t.domain and t.problem:
+        task, critics = load_task_of(config)
+        notes.append(f"task: {task.problem.name} ({task.domain.name}) read; critics "
+                     f"{', '.join(c.name for c in critics)}")
+    else:
+        if config.critics.limits:
+            load_limits(config.critics.limits)
+        notes.append("task: not (fully) given; run needs --domain and --problem")
+    guesser = make_guesser(config)
+    if config.guesser.kind == "http":
+        http = config.guesser.http
+        names = sorted({m.group(1) for text in (http.url, *http.headers.values())
+                        for m in _ENV_REF.finditer(text)})
+        using = f"; environment variables used: {', '.join(names)} (set)" if names else ""
+        notes.append(f"guesser: http, prompt templates read{using}; nothing was sent")
+    else:
+        notes.append(f"guesser: {guesser.name} (local)")
+    key = trace_key(config)
+    if config.trace.path:
+        folder = os.path.dirname(config.trace.path) or "."
+        if not os.path.isdir(folder):
+            raise InputError(Spot(path, None, None,
+                                  f"the trace's folder {folder} does not exist",
+                                  field="trace.path"))
+        signed = (f"signed with the key in {config.trace.key_env}" if key else
+                  f"not signed ({config.trace.key_env} is not set)")
+        size = os.path.getsize(config.trace.path) if os.path.isfile(config.trace.path) else 0
+        if size:
+            signed += (f"; the file already holds {size} bytes and a run will not overwrite "
+                       "it: move it away or choose another path")
+        notes.append(f"trace: {config.trace.path}, {signed}")
+    return effective_text(config), notes
+
+
+# -- the run -----------------------------------------------------------------------------------
+
+
+async def run_command(config: RunConfig, task: Task, critics: list,
+                      args: argparse.Namespace) -> int:
+    """Run the loop as ``config`` says; ``args`` only shapes what is printed and written."""
+    from plansieve.adapters.config_file import make_guesser, make_trace
     from plansieve.cli import EXIT_GUESSER, EXIT_INVALID, EXIT_VALID
-    from plansieve.loop.budget import budget_of
     from plansieve.loop.chain import CriticChain
     from plansieve.loop.engine import sieve
 
-    budget = budget_of(rounds=args.rounds, seconds=args.seconds, tokens=args.tokens,
-                       cost=args.cost)
-    guesser = _guesser(args)
+    budget = config.budget.budget()
+    level = config.feedback.level
     say = (lambda text: None) if args.quiet else (lambda text: print(text, flush=True))
 
     def on_round(s: RoundSummary) -> None:
@@ -69,26 +190,40 @@ async def run_command(args: argparse.Namespace, task: Task, critics: list) -> in
         if args.show_feedback and s.feedback:
             say("".join(f"    | {line}\n" for line in s.feedback.splitlines()).rstrip("\n"))
 
-    chain = CriticChain(critics, run_all=args.run_all)
-    say(f"plansieve run: {task.problem.name} ({task.domain.name}), guesser {guesser.name}, "
-        f"feedback {args.feedback}, budget {budget}")
-    say(f"critics: {', '.join(l.critic.name for l in chain.links)}")
-    trace = _trace(args)
+    guesser = make_guesser(config)
     try:
-        outcome = await sieve(task, guesser, critics=chain, feedback=args.feedback,
-                              budget=budget, trace=trace, seed=args.seed,
-                              task_id=os.path.basename(args.problem),
-                              on_round=on_round)
+        chain = CriticChain(critics, run_all=config.critics.run_all)
+        if config.source:
+            say(f"configuration: {config.source}")
+        who = guesser.name
+        if config.guesser.kind == "http":
+            from plansieve.adapters.secrets import mask_url
+            who += f" ({config.guesser.http.method} {mask_url(config.guesser.http.url)})"
+        say(f"plansieve run: {task.problem.name} ({task.domain.name}), guesser {who}, "
+            f"feedback {level}, budget {budget}")
+        say(f"critics: {', '.join(l.critic.name for l in chain.links)}")
+        trace = make_trace(config, uuid.uuid4().hex)
+        try:
+            outcome = await sieve(
+                task, guesser, critics=chain, feedback=level, budget=budget, trace=trace,
+                seed=config.guesser.local.seed if config.guesser.kind == "local" else None,
+                task_id=config.task.id or os.path.basename(config.task.problem or "task"),
+                prices=config.budget.prices, on_round=on_round)
+        finally:
+            if trace is not None:
+                trace.close()
     finally:
-        if trace is not None:
-            trace.close()
-    _report(outcome, args)
+        close = getattr(guesser, "aclose", None)
+        if close is not None:
+            await close()
+    _report(outcome, config, args, keyed=trace is not None and trace.keyed)
     if outcome.verified:
         return EXIT_VALID
     return EXIT_GUESSER if outcome.stop == "guesser-failed" else EXIT_INVALID
 
 
-def _report(outcome: Outcome, args: argparse.Namespace) -> None:
+def _report(outcome: Outcome, config: RunConfig, args: argparse.Namespace, *,
+            keyed: bool) -> None:
     t = outcome.totals
     cost = f", cost {t.cost:.4g}" if t.cost else ""
     spent = (f"{t.guesser_calls} guesser call(s), {t.tokens} tokens{cost}, "
@@ -98,7 +233,6 @@ def _report(outcome: Outcome, args: argparse.Namespace) -> None:
         for line in (outcome.plan_text or "").splitlines():
             print(f"  {line}")
         if args.plan_out:
-            from plansieve.critics.errors import InputError, Spot
             try:
                 with open(args.plan_out, "w", encoding="utf-8") as f:
                     f.write(outcome.plan_text or "")
@@ -108,6 +242,6 @@ def _report(outcome: Outcome, args: argparse.Namespace) -> None:
             print(f"plan written to {args.plan_out}")
     else:
         print(f"\nNOT VERIFIED: {outcome.detail} ({spent}).", file=sys.stdout)
-    if args.trace:
-        keyed = " with an HMAC" if os.environ.get("PLANSIEVE_TRACE_KEY") else ""
-        print(f"trace: {args.trace} (hash-chained{keyed}; run id {outcome.run_id})")
+    if config.trace.path:
+        signed = " with an HMAC" if keyed else ""
+        print(f"trace: {config.trace.path} (hash-chained{signed}; run id {outcome.run_id})")
