@@ -45,7 +45,7 @@ from plansieve.adapters.http_errors import (
     AnswerTooLarge, AnswerUnreadable, EndpointBusy, EndpointRefused, EndpointTimedOut,
     EndpointUnreachable, NoTimeToWait, with_attempt,
 )
-from plansieve.adapters.http_pool import close_shared, endpoint_gate, shared_client
+from plansieve.adapters.http_pool import close_shared_clients, endpoint_gate, shared_client
 from plansieve.adapters.http_settings import TRANSIENT_STATUS, HttpSettings
 from plansieve.adapters.json_path import PathMissing, describe, lookup, parse_path, show_path
 from plansieve.adapters.placeholders import (
@@ -240,7 +240,7 @@ class HttpGuesser:
         """Close the running event loop's shared connection pool (a client passed in
         is left to its owner). Call it when the loops of this event loop are done."""
         if self._client is None:
-            await close_shared()
+            await close_shared_clients()
 
     # -- the round ----------------------------------------------------------------------
 

@@ -85,7 +85,7 @@ def endpoint_gate(method: str, url: str, concurrency: int,
     return gate
 
 
-async def close_shared() -> None:
+async def close_shared_clients() -> None:
     """Close the running event loop's client and forget its gates.
 
     Calls in flight on other tasks fail as broken connections; call this when the

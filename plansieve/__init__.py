@@ -77,6 +77,21 @@ _EXPORTS: dict[str, str] = {
     "Attempt": "plansieve.adapters.guesser",
     "GuesserFailed": "plansieve.adapters.guesser",
     "HeuristicGuesser": "plansieve.adapters.heuristic",
+    "RetryNote": "plansieve.adapters.guesser",
+    "HttpGuesser": "plansieve.adapters.http_guesser",
+    "HttpSettings": "plansieve.adapters.http_settings",
+    "EndpointUnreachable": "plansieve.adapters.http_errors",
+    "EndpointTimedOut": "plansieve.adapters.http_errors",
+    "EndpointRefused": "plansieve.adapters.http_errors",
+    "EndpointBusy": "plansieve.adapters.http_errors",
+    "AnswerTooLarge": "plansieve.adapters.http_errors",
+    "AnswerUnreadable": "plansieve.adapters.http_errors",
+    "NoTimeToWait": "plansieve.adapters.http_errors",
+    "close_shared_clients": "plansieve.adapters.http_pool",
+    # configuration files
+    "RunConfig": "plansieve.adapters.config_file",
+    "load_config": "plansieve.adapters.config_file",
+    "effective_text": "plansieve.adapters.config_file",
     "MistakeRates": "plansieve.adapters.mistakes",
     "ScriptedGuesser": "plansieve.adapters.scripted",
     "ReplayGuesser": "plansieve.adapters.replay",
@@ -127,10 +142,18 @@ if TYPE_CHECKING:  # for type checkers and IDEs
     from plansieve.critics.plan_text import load_plan, read_plan, read_plan_json
     from plansieve.critics.protocol import Critic
     from plansieve.critics.simulator import PlanSimulator
+    from plansieve.adapters.config_file import RunConfig, effective_text, load_config
     from plansieve.adapters.guesser import (
-        Attempt, Guess, Guesser, GuesserFailed, GuessRequest, Usage,
+        Attempt, Guess, Guesser, GuesserFailed, GuessRequest, RetryNote, Usage,
     )
     from plansieve.adapters.heuristic import HeuristicGuesser
+    from plansieve.adapters.http_errors import (
+        AnswerTooLarge, AnswerUnreadable, EndpointBusy, EndpointRefused, EndpointTimedOut,
+        EndpointUnreachable, NoTimeToWait,
+    )
+    from plansieve.adapters.http_guesser import HttpGuesser
+    from plansieve.adapters.http_pool import close_shared_clients
+    from plansieve.adapters.http_settings import HttpSettings
     from plansieve.adapters.mistakes import MistakeRates
     from plansieve.adapters.replay import ReplayGuesser
     from plansieve.adapters.scripted import ScriptedGuesser

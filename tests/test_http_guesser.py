@@ -29,7 +29,7 @@ from plansieve.adapters.http_errors import (
     EndpointUnreachable, NoTimeToWait,
 )
 from plansieve.adapters.http_guesser import HttpGuesser
-from plansieve.adapters.http_pool import close_shared, endpoint_gate, shared_client
+from plansieve.adapters.http_pool import close_shared_clients, endpoint_gate, shared_client
 from plansieve.adapters.http_settings import HttpSettings
 from plansieve.adapters.rate_limit import TokenBucket
 from plansieve.adapters.retry_after import parse_http_date, retry_after_seconds
@@ -87,7 +87,7 @@ async def _guess(guesser: HttpGuesser, *, round_: int = 1, history=(), deadline_
     try:
         return await guesser.guess(request), notes
     finally:
-        await close_shared()
+        await close_shared_clients()
 
 
 def ask(guesser: HttpGuesser, **kw):
@@ -109,7 +109,7 @@ def fail(guesser: HttpGuesser, error=GuesserFailed, **kw):
             await guesser.guess(request)
         finally:
             notes_seen.extend(notes)
-            await close_shared()
+            await close_shared_clients()
 
     with pytest.raises(error) as info:
         asyncio.run(main())
@@ -281,7 +281,7 @@ def test_one_client_and_one_gate_per_event_loop():
         assert endpoint_gate("POST", URL, 4, None) is g1
         assert endpoint_gate("POST", URL, 8, None) is not g1
         assert endpoint_gate("POST", URL, 4, 30.0).bucket is not None and g1.bucket is None
-        await close_shared()
+        await close_shared_clients()
         assert a.is_closed
         c = shared_client()
         assert c is not a
@@ -292,7 +292,7 @@ def test_one_client_and_one_gate_per_event_loop():
     async def second():
         assert endpoint_gate("POST", URL, 4, None) is not old_gate
         assert shared_client() is not old_client()
-        await close_shared()
+        await close_shared_clients()
 
     asyncio.run(second())
     gc.collect()
@@ -631,7 +631,7 @@ def test_concurrency_gate_is_shared_by_guessers_and_loops(router):
             return await asyncio.gather(*(g.guess(r) for g, r in
                                           zip([a, b] * 4, requests)))
         finally:
-            await close_shared()
+            await close_shared_clients()
 
     guesses = asyncio.run(main())
     assert len(guesses) == 8 and in_flight["most"] == 2
@@ -649,7 +649,7 @@ def test_rate_limit_wait_past_the_budget_fails_at_once(router):
                                                  deadline=time.monotonic() + 5))
             return info.value
         finally:
-            await close_shared()
+            await close_shared_clients()
 
     error = asyncio.run(main())
     assert route.call_count == 1 and error.guesser == "http"
@@ -679,7 +679,7 @@ def test_one_guesser_serves_many_rounds_at_once(router):
         try:
             return await asyncio.gather(*(guesser.guess(request(n)) for n in range(1, 21)))
         finally:
-            await close_shared()
+            await close_shared_clients()
 
     guesses = asyncio.run(main())
     for n, guess in enumerate(guesses, start=1):
@@ -736,7 +736,7 @@ def test_request_settings_that_are_not_json(router):
             await make_guesser().guess(GuessRequest(task=TASK, round=1,
                                                     settings={"stop": {"a", "b"}}))
         finally:
-            await close_shared()
+            await close_shared_clients()
 
     with pytest.raises(GuesserFailed, match="cannot be written as JSON"):
         asyncio.run(main())
@@ -815,7 +815,7 @@ def _run(guesser, budget):
             return await sieve(TASK, guesser, budget=budget,
                                trace=TraceWriter(sink, run_id="http-test"), task_id="harbour")
         finally:
-            await close_shared()
+            await close_shared_clients()
 
     return asyncio.run(main()), sink
 
