@@ -44,14 +44,8 @@ from plansieve.adapters.http_settings import CONVERSATIONS, Prompts
 from plansieve.adapters.placeholders import check_text_template, fill_text, names_in
 from plansieve.critics.errors import InputError, Spot
 from plansieve.critics.limits import Limits, TimeSettings
-from plansieve.critics.model import (
-    Arith,
-    DurationRef,
-    FluentRef,
-    Number,
-    Param,
-    Task,
-)
+from plansieve.critics.model import Param, Task
+from plansieve.critics.render import expr, number
 
 PROMPT_NAMES: tuple[str, ...] = ("domain", "problem", "limits", "plan_format", "actions",
                                  "round", "task_id", "feedback", "latest_answer")
@@ -64,13 +58,6 @@ _EMPTY_ANSWER = "(an empty answer)"
 
 # -- what the placeholders hold -------------------------------------------------------------
 
-def _num(x: float) -> str:
-    """A number as a person writes it: 40 rather than 40.0, 0.1 rather than 0.1000."""
-    if float(x).is_integer() and abs(x) < 1e15:
-        return str(int(x))
-    return repr(float(x))
-
-
 def limits_summary(limits: Limits | None) -> str:
     """The limits file in plain words, one rule a line; "" when there are none."""
     if limits is None or limits.empty:
@@ -79,24 +66,24 @@ def limits_summary(limits: Limits | None) -> str:
     for r in limits.resource:
         unit = f" {r.unit}" if r.unit else ""
         if r.floor is not None and r.ceiling is not None:
-            rule = f"must stay between {_num(r.floor)} and {_num(r.ceiling)}{unit}"
+            rule = f"must stay between {number(r.floor)} and {number(r.ceiling)}{unit}"
         elif r.floor is not None:
-            rule = f"must stay at or above {_num(r.floor)}{unit}"
+            rule = f"must stay at or above {number(r.floor)}{unit}"
         else:
-            rule = f"must stay at or below {_num(r.ceiling)}{unit}"
+            rule = f"must stay at or below {number(r.ceiling)}{unit}"
         label = f"{r.label}: " if r.label else ""
         lines.append(f"- {label}{r.fluent} {rule} at every point of the plan")
     for d in limits.deadline:
         label = f"{d.label}: " if d.label else ""
-        lines.append(f"- {label}{d.condition} must be true at time {_num(d.by)} or earlier")
+        lines.append(f"- {label}{d.condition} must be true at time {number(d.by)} or earlier")
     t = limits.time
     if t.makespan is not None:
-        lines.append(f"- the whole plan must be over by time {_num(t.makespan)}")
+        lines.append(f"- the whole plan must be over by time {number(t.makespan)}")
     if t.clock is not None:
         lines.append(f"- time is the value of {t.clock}, which the actions advance")
     if t.tolerance != TimeSettings().tolerance:
         lines.append(f"- actions that interfere with each other must be at least "
-                     f"{_num(t.tolerance)} apart in time")
+                     f"{number(t.tolerance)} apart in time")
     return "\n".join(lines)
 
 
@@ -117,18 +104,6 @@ def plan_format(task: Task) -> str:
             "its duration in square brackets, like\n"
             "0.5: (action-name first-argument second-argument) [2]\n"
             "Every step needs a start time; times are numbers counted from 0. " + tolerated)
-
-
-def _expr(e: Any) -> str:
-    if isinstance(e, Number):
-        return _num(e.value)
-    if isinstance(e, FluentRef):
-        return f"({' '.join((e.function, *e.args))})"
-    if isinstance(e, Arith):
-        return f"({' '.join((e.op, *map(_expr, e.args)))})"
-    if isinstance(e, DurationRef):
-        return "?duration"
-    return "?"
 
 
 def _params(params: tuple[Param, ...], typed: bool) -> str:
@@ -152,7 +127,7 @@ def actions_summary(task: Task) -> str:
         lines.append(f"({' '.join(filter(None, (a.name, _params(a.params, typed))))})")
     for a in domain.durative_actions.values():
         head = f"({' '.join(filter(None, (a.name, _params(a.params, typed))))})"
-        rules = " and ".join(f"({c.op} ?duration {_expr(c.value)})" for c in a.duration)
+        rules = " and ".join(f"({c.op} ?duration {expr(c.value)})" for c in a.duration)
         lines.append(f"{head}  ; durative" + (f", {rules}" if rules else ""))
     return "\n".join(lines)
 
