@@ -24,6 +24,7 @@ everything the guesser returns, raises or logs; headers are never logged.
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import http
 import json
 import logging
@@ -45,13 +46,13 @@ from plansieve.adapters.http_errors import (
     AnswerTooLarge, AnswerUnreadable, EndpointBusy, EndpointRefused, EndpointTimedOut,
     EndpointUnreachable, NoTimeToWait, with_attempt,
 )
-from plansieve.adapters.http_pool import close_shared_clients, endpoint_gate, shared_client
+from plansieve.adapters.http_pool import close_shared_clients, endpoint_gate, lease
 from plansieve.adapters.http_settings import TRANSIENT_STATUS, HttpSettings
 from plansieve.adapters.json_path import PathMissing, describe, lookup, parse_path, show_path
 from plansieve.adapters.placeholders import (
     BODY_NAMES, check_json_template, fill_json, names_in,
 )
-from plansieve.adapters.prompts import PromptBook
+from plansieve.adapters.prompts import PromptBook, as_messages, as_prompt
 from plansieve.adapters.retry_after import retry_after_seconds
 from plansieve.adapters.secrets import (
     Secrets, fill_env, is_sensitive, literal_secrets, mask_header, mask_url,
@@ -174,6 +175,7 @@ class HttpGuesser:
         self._body = settings.request_body()
         check_json_template(self._body, BODY_NAMES, source=source, field=f"{_FIELD}.body")
         used = set(names_in(json.dumps(self._body, ensure_ascii=False)))
+        self._used = frozenset(n.split(".", 1)[0] for n in used)
         # sampling settings go to the top level of an object body unless the template
         # places them itself
         self._merge_sampling = isinstance(self._body, dict) and not any(
@@ -252,9 +254,11 @@ class HttpGuesser:
     def _request_body(self, request: GuessRequest) -> tuple[bytes, str, str]:
         """(the body to send, the prompt text it carries, the new turns for the trace)."""
         conversation = self.settings.conversation
-        messages = self._book.messages(request, conversation)
-        prompt = self._book.prompt(request, conversation)
-        system = self._book.system(request)
+        book = self._book
+        turns = book.turns(request, conversation)
+        prompt = as_prompt(turns)
+        messages = as_messages(turns) if "messages" in self._used else None
+        system = book.system(request) if "system" in self._used else None
         # Settings passed with the request (a sweep's temperature) override the file's.
         sampling = {**self.settings.sampling, **request.settings}
         values = {"prompt": prompt, "messages": messages, "system": system,
@@ -311,8 +315,9 @@ class HttpGuesser:
         started = time.monotonic()
         async with gate.semaphore:
             try:
-                status, body, content_type, charset = await asyncio.wait_for(
-                    self._exchange(content, number), timeout=s.timeouts.call)
+                with contextlib.nullcontext(self._client) if self._client else lease() as client:
+                    status, body, content_type, charset = await asyncio.wait_for(
+                        self._exchange(client, content, number), timeout=s.timeouts.call)
             except _Transient as t:
                 t.usage = Usage(seconds=time.monotonic() - started)
                 raise
@@ -325,11 +330,10 @@ class HttpGuesser:
         log.debug("try %d at %s: status %d, %d bytes", number, self._shown_url, status, len(body))
         return self._read_answer(body, content_type, charset, number)
 
-    async def _exchange(self, content: bytes,
+    async def _exchange(self, client: httpx.AsyncClient, content: bytes,
                         number: int) -> tuple[int, bytes, str | None, str | None]:
         """Send once and read the answer, cut at the size limit."""
         s = self.settings
-        client = self._client or shared_client()
         timeout = httpx.Timeout(connect=s.timeouts.connect, read=s.timeouts.read,
                                 write=s.timeouts.read, pool=s.timeouts.connect)
         try:

@@ -1,14 +1,22 @@
-"""One connection pool per event loop, and one gate per endpoint, shared by all loops in it.
+"""Connection pools per event loop, and one gate per endpoint, shared by all loops in it.
 
 Hundreds of plan loops in one process talk to the same few endpoints. Opening a
-client per loop (or per call) would open a connection per call; one
-``httpx.AsyncClient`` per event loop keeps connections alive and reuses them. The
-client cannot cross event loops (its connections belong to the loop that opened
-them), so each running loop gets its own, found by the loop itself.
+client per loop (or per call) would open a connection per call; clients kept per
+event loop keep connections alive and reuse them. A client cannot cross event
+loops (its connections belong to the loop that opened them), so each running loop
+gets its own, found by the loop itself.
+
+The connections are split over small clients ("shards") of about
+``SHARD_CONNECTIONS`` calls in flight each, and each call leases the least busy one:
+httpx's pool does bookkeeping over all of its connections at every request, which
+grows with the square of the connections in one pool, so at 200 calls in flight
+one big pool spends most of the client's time there (measured by
+bench/bench_http.py). Split, the connections opened still stay near the number
+of calls in flight, not the number of calls.
 
 An endpoint's gate — the concurrency limit and the rate limit — must be shared by
 every loop that calls it, or the limits would hold per loop and multiply. Gates
-live beside the client, keyed by what identifies the endpoint and its limits.
+live beside the clients, keyed by what identifies the endpoint and its limits.
 
 A loop that has been closed (``asyncio.run`` returned) is forgotten at the next
 lookup from any loop, and a loop no longer referenced drops out by itself, so
@@ -18,7 +26,11 @@ nothing is carried from one ``asyncio.run`` to the next.
 from __future__ import annotations
 
 import asyncio
+import contextlib
+import functools
+import ssl
 import weakref
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import httpx
@@ -30,6 +42,8 @@ from plansieve.adapters.rate_limit import TokenBucket
 # every idle connection, so a burst of N concurrent calls reuses N connections.
 POOL_LIMITS = httpx.Limits(max_connections=None, max_keepalive_connections=None,
                            keepalive_expiry=30.0)
+# Calls in flight a shard takes before another shard is opened.
+SHARD_CONNECTIONS = 8
 
 GateKey = tuple[str, str, int, "float | None"]
 
@@ -45,8 +59,14 @@ class Gate:
 
 
 @dataclass
+class _Shard:
+    client: httpx.AsyncClient
+    busy: int = 0
+
+
+@dataclass
 class _Share:
-    client: httpx.AsyncClient | None = None
+    shards: list[_Shard] = field(default_factory=list)
     gates: dict[GateKey, Gate] = field(default_factory=dict)
 
 
@@ -65,12 +85,35 @@ def _share() -> _Share:
     return share
 
 
-def shared_client() -> httpx.AsyncClient:
-    """The running event loop's client, opened on first use (and again after closing)."""
+@functools.cache
+def _tls() -> ssl.SSLContext:
+    """One TLS context for every client of the process: building one reads the whole
+    certificate bundle (tens of milliseconds), which a new shard should not repeat.
+    httpx's own defaults (certifi, or SSL_CERT_FILE / SSL_CERT_DIR when set)."""
+    return httpx.create_ssl_context()
+
+
+@contextlib.contextmanager
+def lease() -> Iterator[httpx.AsyncClient]:
+    """A client of the running event loop's pool for one call: the least busy shard,
+    or a new one when every shard has ``SHARD_CONNECTIONS`` calls in flight."""
     share = _share()
-    if share.client is None or share.client.is_closed:
-        share.client = httpx.AsyncClient(limits=POOL_LIMITS, follow_redirects=False)
-    return share.client
+    share.shards = [s for s in share.shards if not s.client.is_closed]
+    shard = min(share.shards, key=lambda s: s.busy, default=None)
+    if shard is None or shard.busy >= SHARD_CONNECTIONS:
+        shard = _Shard(httpx.AsyncClient(limits=POOL_LIMITS, follow_redirects=False,
+                                         verify=_tls()))
+        share.shards.append(shard)
+    shard.busy += 1
+    try:
+        yield shard.client
+    finally:
+        shard.busy -= 1
+
+
+def open_clients() -> list[httpx.AsyncClient]:
+    """The running event loop's clients (for tests and diagnostics)."""
+    return [s.client for s in _share().shards if not s.client.is_closed]
 
 
 def endpoint_gate(method: str, url: str, concurrency: int,
@@ -86,12 +129,13 @@ def endpoint_gate(method: str, url: str, concurrency: int,
 
 
 async def close_shared_clients() -> None:
-    """Close the running event loop's client and forget its gates.
+    """Close the running event loop's clients and forget its gates.
 
     Calls in flight on other tasks fail as broken connections; call this when the
     loops of this event loop are done (a later call opens a fresh client).
     """
     loop = asyncio.get_running_loop()
     share = _shares.pop(loop, None)
-    if share is not None and share.client is not None:
-        await share.client.aclose()
+    if share is not None:
+        for shard in share.shards:
+            await shard.client.aclose()

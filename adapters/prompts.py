@@ -33,6 +33,7 @@ from __future__ import annotations
 import functools
 import hashlib
 import re
+from collections import OrderedDict
 from collections.abc import Mapping
 from dataclasses import dataclass
 from importlib import resources
@@ -212,6 +213,9 @@ def _render(template: str, values: Mapping[str, str]) -> str:
     return "".join(out).strip()
 
 
+_TASKS_KEPT = 64
+
+
 # -- the book ------------------------------------------------------------------------------
 
 class PromptBook:
@@ -220,6 +224,10 @@ class PromptBook:
     def __init__(self, system: Template, task: Template, retry: Template) -> None:
         self.templates = {"system": system, "task": task, "retry": retry}
         self._used = frozenset(n for t in self.templates.values() for n in names_in(t.text))
+        # The task's values (its PDDL text, actions, limits) for the last few tasks seen:
+        # many loops ask about one task, every round. Keyed by id, kept with the task so
+        # the id cannot be reused while the entry lives.
+        self._values: OrderedDict[int, tuple[Task, dict[str, str]]] = OrderedDict()
 
     @classmethod
     def load(cls, prompts: Prompts | None = None, base_dir: Path | None = None, *,
@@ -245,7 +253,14 @@ class PromptBook:
     # values
 
     def _task_values(self, task: Task) -> dict[str, str]:
-        return {name: make(task) for name, make in _TASK_VALUES.items() if name in self._used}
+        hit = self._values.get(id(task))
+        if hit is not None and hit[0] is task:
+            return hit[1]
+        values = {name: make(task) for name, make in _TASK_VALUES.items() if name in self._used}
+        self._values[id(task)] = (task, values)
+        if len(self._values) > _TASKS_KEPT:
+            self._values.popitem(last=False)
+        return values
 
     @staticmethod
     def _turn(base: Mapping[str, str], request: GuessRequest, round_: int, feedback: str,
@@ -289,20 +304,20 @@ class PromptBook:
         return self._fill("retry", self._turn(base, request, attempt.round + 1,
                                               attempt.feedback, latest))
 
+    def turns(self, request: GuessRequest, conversation: str = "history") \
+            -> list[tuple[str, str]]:
+        """The round's prompt as (role, text) turns; ``as_messages`` and ``as_prompt``
+        give it the two shapes endpoints take."""
+        return self._turns(request, conversation)
+
     def messages(self, request: GuessRequest, conversation: str = "history") \
             -> list[dict[str, str]]:
         """The round's prompt as role/content messages (roles system, user, assistant)."""
-        return [{"role": role, "content": text} for role, text in
-                self._turns(request, conversation)]
+        return as_messages(self._turns(request, conversation))
 
     def prompt(self, request: GuessRequest, conversation: str = "history") -> str:
         """The round's prompt as one text, for endpoints that take a single prompt."""
-        out = []
-        for role, text in self._turns(request, conversation):
-            if role == "assistant":
-                text = f"[your answer, as you gave it]\n{text}\n[end of your answer]"
-            out.append(text)
-        return "\n\n".join(out)
+        return as_prompt(self._turns(request, conversation))
 
     def system(self, request: GuessRequest) -> str:
         """The system text alone, for bodies that take it apart from the messages."""
@@ -316,6 +331,21 @@ class PromptBook:
             return "\n\n".join(text for _, text in turns)
         base = self._task_values(request.task)
         return self._retry(base, request, request.history[-1], latest="")
+
+
+def as_messages(turns: list[tuple[str, str]]) -> list[dict[str, str]]:
+    """Turns as role/content messages."""
+    return [{"role": role, "content": text} for role, text in turns]
+
+
+def as_prompt(turns: list[tuple[str, str]]) -> str:
+    """Turns as one text; earlier answers are marked so the model can tell them apart."""
+    out = []
+    for role, text in turns:
+        if role == "assistant":
+            text = f"[your answer, as you gave it]\n{text}\n[end of your answer]"
+        out.append(text)
+    return "\n\n".join(out)
 
 
 def _answer(attempt: Attempt) -> str:

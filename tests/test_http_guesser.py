@@ -9,6 +9,7 @@ from the harbour demo (examples/harbour, our own scenario). Waits are kept tiny
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import gc
 import json
 import logging
@@ -29,7 +30,9 @@ from plansieve.adapters.http_errors import (
     EndpointUnreachable, NoTimeToWait,
 )
 from plansieve.adapters.http_guesser import HttpGuesser
-from plansieve.adapters.http_pool import close_shared_clients, endpoint_gate, shared_client
+from plansieve.adapters.http_pool import (
+    SHARD_CONNECTIONS, close_shared_clients, endpoint_gate, lease, open_clients,
+)
 from plansieve.adapters.http_settings import HttpSettings
 from plansieve.adapters.rate_limit import TokenBucket
 from plansieve.adapters.retry_after import parse_http_date, retry_after_seconds
@@ -273,31 +276,49 @@ def test_bucket_checks_its_settings():
 
 # --- the shared pool ----------------------------------------------------------------------------
 
-def test_one_client_and_one_gate_per_event_loop():
+def test_clients_and_gates_are_shared_per_event_loop():
     async def first():
-        a, b = shared_client(), shared_client()
-        assert a is b
+        with lease() as a:
+            pass
+        with lease() as b:
+            assert b is a  # an idle shard is leased again
         g1 = endpoint_gate("POST", URL, 4, None)
         assert endpoint_gate("POST", URL, 4, None) is g1
         assert endpoint_gate("POST", URL, 8, None) is not g1
         assert endpoint_gate("POST", URL, 4, 30.0).bucket is not None and g1.bucket is None
         await close_shared_clients()
         assert a.is_closed
-        c = shared_client()
-        assert c is not a
+        with lease() as c:
+            assert c is not a
         return weakref.ref(c), g1
 
     old_client, old_gate = asyncio.run(first())
 
     async def second():
         assert endpoint_gate("POST", URL, 4, None) is not old_gate
-        assert shared_client() is not old_client()
+        with lease() as d:
+            assert d is not old_client()
         await close_shared_clients()
 
     asyncio.run(second())
     gc.collect()
     # the first loop's client (never closed) was dropped with its loop
     assert old_client() is None
+
+
+def test_calls_in_flight_spread_over_small_shards():
+    async def main():
+        with contextlib.ExitStack() as stack:
+            held = [stack.enter_context(lease()) for _ in range(2 * SHARD_CONNECTIONS + 1)]
+            assert len(open_clients()) == 3
+            assert held.count(held[0]) == SHARD_CONNECTIONS
+        # all idle again: the next call takes one of the shards already open
+        with lease() as again:
+            assert again in held and len(open_clients()) == 3
+        await close_shared_clients()
+        assert open_clients() == []
+
+    asyncio.run(main())
 
 
 # --- answer shapes ------------------------------------------------------------------------------
@@ -767,9 +788,10 @@ def test_aclose_closes_the_shared_pool(router):
     async def main():
         guesser = make_guesser()
         await guesser.guess(GuessRequest(task=TASK, round=1))
-        client = shared_client()
+        clients = open_clients()
+        assert len(clients) == 1
         await guesser.aclose()
-        assert client.is_closed
+        assert clients[0].is_closed and open_clients() == []
         # a later call opens a fresh pool
         await guesser.guess(GuessRequest(task=TASK, round=2))
         await guesser.aclose()
