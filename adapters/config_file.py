@@ -17,7 +17,7 @@ from __future__ import annotations
 import math
 import os
 import re
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from os import PathLike
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -277,16 +277,18 @@ def trace_key(config: RunConfig, env: Mapping[str, str] | None = None) -> bytes 
     return key
 
 
-def make_trace(config: RunConfig, run_id: str, *, env: Mapping[str, str] | None = None):
-    """A TraceWriter to ``config.trace.path`` with its redaction and key, or None."""
+def make_trace(config: RunConfig, run_id: str, *, env: Mapping[str, str] | None = None,
+               also: Sequence[Any] = ()):
+    """A TraceWriter to ``config.trace.path`` (and the sinks in ``also``, such as a
+    progress display) with the file's redaction and key; None with neither."""
     t = config.trace
-    if t.path is None:
+    if t.path is None and not also:
         return None
     from plansieve.loop.trace import FileSink, Redactor, TraceWriter
     key = trace_key(config, env)
     redact = Redactor(patterns=t.redact) if t.redact else None
-    return TraceWriter(FileSink(t.path, fsync=t.fsync), run_id=run_id, hmac_key=key,
-                       redact=redact)
+    sinks = ([FileSink(t.path, fsync=t.fsync)] if t.path is not None else []) + list(also)
+    return TraceWriter(sinks, run_id=run_id, hmac_key=key, redact=redact)
 
 
 # -- showing it back ---------------------------------------------------------------------------

@@ -47,6 +47,13 @@ def round_line(s: RoundSummary) -> str:
 _LOCAL_FLAGS = (("seed", "--seed"), ("mistakes", "--mistakes"), ("uptake", "--uptake"))
 
 
+def retry_line(event) -> str:
+    """One failed try that will be tried again: round, try, why, and the wait."""
+    wait = f"; trying again in {event.wait_seconds:.2g} s" if event.wait_seconds else \
+        "; trying again"
+    return f"round {event.round}, try {event.attempt} failed: {event.reason}{wait}"
+
+
 def config_for(args: argparse.Namespace) -> RunConfig:
     """The configuration named by --config, else plansieve.toml here if present, else
     the defaults."""
@@ -180,6 +187,7 @@ async def run_command(config: RunConfig, task: Task, critics: list,
     from plansieve.cli import EXIT_GUESSER, EXIT_INVALID, EXIT_VALID
     from plansieve.loop.chain import CriticChain
     from plansieve.loop.engine import sieve
+    from plansieve.loop.trace import CallbackSink
 
     budget = config.budget.budget()
     level = config.feedback.level
@@ -189,6 +197,11 @@ async def run_command(config: RunConfig, task: Task, critics: list,
         say(round_line(s))
         if args.show_feedback and s.feedback:
             say("".join(f"    | {line}\n" for line in s.feedback.splitlines()).rstrip("\n"))
+
+    def show_retry(event) -> None:
+        # the guesser's failed tries, as they happen (rounds are shown by on_round)
+        if event.kind == "guess-failed" and event.retry:
+            say(retry_line(event))
 
     guesser = make_guesser(config)
     try:
@@ -202,7 +215,7 @@ async def run_command(config: RunConfig, task: Task, critics: list,
         say(f"plansieve run: {task.problem.name} ({task.domain.name}), guesser {who}, "
             f"feedback {level}, budget {budget}")
         say(f"critics: {', '.join(l.critic.name for l in chain.links)}")
-        trace = make_trace(config, uuid.uuid4().hex)
+        trace = make_trace(config, uuid.uuid4().hex, also=[CallbackSink(show_retry)])
         try:
             outcome = await sieve(
                 task, guesser, critics=chain, feedback=level, budget=budget, trace=trace,

@@ -251,6 +251,22 @@ def test_prompt_templates_resolve_against_the_config_folder(capsys, tmp_path, mo
     assert body["messages"][0]["content"].startswith("You plan the night shift at Veyrun")
 
 
+def test_retried_tries_are_shown_as_they_happen(capsys, tmp_path, monkeypatch):
+    monkeypatch.setenv("PLANNER_API_KEY", KEY)
+    path = write_config(tmp_path)  # retries: attempts 2, first_wait 0.01
+    with respx.mock:
+        # Source: RFC 9110 sec. 15.6.4 — 503 is transient; sec. 10.2.3 Retry-After seconds.
+        respx.post(URL).mock(side_effect=[
+            httpx.Response(503, headers={"Retry-After": "0"}), chat_answer(GOOD_PLAN)])
+        code, out, err = cli(capsys, "run", "--config", str(path))
+    assert code == 0, out + err
+    lines = out.splitlines()
+    retry = next(i for i, l in enumerate(lines) if l.startswith("round 1, try 1 failed:"))
+    assert "503 (Service Unavailable)" in lines[retry]
+    assert lines[retry + 1].startswith("round 1: accepted")
+    assert "VERIFIED in round 1 (2 guesser call(s)" in out
+
+
 def test_a_failing_endpoint_exits_3_with_the_reason(capsys, tmp_path, monkeypatch):
     monkeypatch.setenv("PLANNER_API_KEY", KEY)
     path = write_config(tmp_path)
