@@ -18,6 +18,9 @@ def test_wheel_ships_grammar_and_namespace(tmp_path):
     wheel = next(tmp_path.glob("plansieve-*.whl"))
     names = set(zipfile.ZipFile(wheel).namelist())
     assert "plansieve/critics/pddl.lark" in names
+    # the default prompt templates of the HTTP guesser
+    for part in ("system", "task", "retry"):
+        assert f"plansieve/adapters/prompts/{part}.txt" in names
     for module in ("plansieve/__init__.py", "plansieve/cli.py", "plansieve/critics/simulator.py",
                    "plansieve/loop/__init__.py", "plansieve/adapters/__init__.py"):
         assert module in names
