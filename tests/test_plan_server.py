@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import json
 import socket
+import time
 from datetime import datetime, timedelta, timezone
 from email.utils import parsedate_to_datetime
 from pathlib import Path
@@ -111,7 +112,13 @@ def test_counts_connections_and_records_handling_time(task):
         finally:
             for c in clients:
                 c.close()
-        served = server.served
+        # The server writes its own time after the answer is on its way, so the client can
+        # have it first: give the records a moment to be completed.
+        for _ in range(500):
+            served = server.served
+            if all(s.seconds is not None for s in served):
+                break
+            time.sleep(0.01)
         assert server.connections == 3 and server.requests == 6
         assert sorted({s.connection for s in served}) == [0, 1, 2]
         assert [s.number for s in served] == list(range(6))
