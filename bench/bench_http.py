@@ -228,7 +228,8 @@ def alone_run(task, settings, history, loops: int, rounds: int, tag: str,
     return run
 
 
-def bare_run(task, url, history, loops: int, rounds: int, tag: str, split: int | None = None):
+def bare_run(task, url, history, loops: int, rounds: int, tag: str, split: int | None = None,
+             at_once: bool = True):
     book = PromptBook.load()
     bodies = {}
     for i in range(loops):  # built before the clock starts: the floor sends bytes only
@@ -256,7 +257,11 @@ def bare_run(task, url, history, loops: int, rounds: int, tag: str, split: int |
                 times[(f"{tag}-{i}", r)] = time.perf_counter() - started
 
         try:
-            await asyncio.gather(*[one(i) for i in range(loops)])
+            if at_once:
+                await asyncio.gather(*[one(i) for i in range(loops)])
+            else:
+                for i in range(loops):
+                    await one(i)
         finally:
             for client in clients:
                 await client.aclose()
@@ -305,7 +310,7 @@ def main(argv: list[str] | None = None) -> int:
             raise RuntimeError("the warm-up run did not go the planned number of rounds")
 
         passes: dict[str, list[Pass]] = {"bare": [], "split": [], "alone": [], "loops": [],
-                                         "idle": []}
+                                         "idle": [], "bare-idle": []}
         began = time.perf_counter()
         for n in range(args.passes):
             if n and time.perf_counter() - began > TIME_CAP:
@@ -321,6 +326,8 @@ def main(argv: list[str] | None = None) -> int:
                 task, chain, settings, loops, rounds, f"loop{n}")))
             passes["idle"].append(measure(server, "idle", alone_run(
                 task, settings, history, IDLE_CALLERS, rounds, f"idle{n}", at_once=False)))
+            passes["bare-idle"].append(measure(server, "bare-idle", bare_run(
+                task, server.url, history, IDLE_CALLERS, rounds, f"bidle{n}", at_once=False)))
     finally:
         server.close()
 
@@ -339,19 +346,21 @@ def main(argv: list[str] | None = None) -> int:
               "split": f"bare httpx, {SPLIT} conns a client",
               "alone": "HttpGuesser alone",
               "loops": f"{loops} loops (sieve + HttpGuesser)",
-              "idle": "HttpGuesser, one call at a time"}
+              "idle": "HttpGuesser, one call at a time",
+              "bare-idle": "bare httpx, one call at a time"}
     for key, p in best.items():
         print(f"   {labels[key]:34}{p.rate:>8,.0f}{pct(p.added, .5) * 1e3:>10,.1f} ms"
               f"{pct(p.added, .99) * 1e3:>10,.1f} ms{p.cpu / p.calls * 1e3:>8.2f} ms"
               f"{p.connections:>7}")
-    lp, sp, ip = best["loops"], best["split"], best["idle"]
+    lp, sp, ip, bi = best["loops"], best["split"], best["idle"], best["bare-idle"]
     print(f"a. {lp.rate:,.0f} calls/s from {loops} loops ({lp.rate / sp.rate:.2f} x bare httpx "
           f"split into clients of {SPLIT}); a call takes {LATENCY * 1e3:.0f} ms at the server, "
           f"so {loops / LATENCY:,.0f}/s would be the ceiling; the client process was busy "
           f"{lp.cpu / lp.wall * 100:.0f} % of the pass (near 100 %: its CPU is the limit)")
     p50, p99 = pct(lp.added, .5), pct(lp.added, .99)
     print(f"b. added latency of our client, idle (one call at a time): p50 "
-          f"{pct(ip.added, .5) * 1e3:.2f} ms, p99 {pct(ip.added, .99) * 1e3:.2f} ms; "
+          f"{pct(ip.added, .5) * 1e3:.2f} ms, p99 {pct(ip.added, .99) * 1e3:.2f} ms (bare httpx "
+          f"p50 {pct(bi.added, .5) * 1e3:.2f} ms, p99 {pct(bi.added, .99) * 1e3:.2f} ms); "
           f"under the full load: p50 {p50 * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms (bare httpx "
           f"split: p50 {pct(sp.added, .5) * 1e3:.1f} ms, "
           f"p99 {pct(sp.added, .99) * 1e3:.1f} ms)")
