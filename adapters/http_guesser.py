@@ -198,6 +198,8 @@ class HttpGuesser:
             raise InputError(Spot(source, None, None, f"{self._shown_url!r} is not an "
                                   f"http:// or https:// address with a host", field=where))
         secrets = {url.password} if url.password else set()
+        if url.username and not url.password:
+            secrets.add(url.username)  # a token written as the whole userinfo
         secrets |= {v for k, v in url.params.multi_items() if is_sensitive(k) and v}
         return secrets
 

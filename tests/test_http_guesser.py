@@ -827,6 +827,18 @@ def test_literal_key_in_a_header_is_scrubbed_too(router):
     assert "abc-literal-999" not in json.dumps(guesser.describe())
 
 
+def test_a_token_written_as_the_whole_userinfo_is_scrubbed(router):
+    # Source: RFC 3986 sec. 3.2.1 — userinfo may hold a user name alone; services that take
+    # a token there (common practice) put the whole secret in it.
+    secret_url = URL.replace("://", "://tok-userinfo-4242@")
+    router.post(url__startswith=URL.split("://")[0]).mock(
+        return_value=httpx.Response(400, text="token tok-userinfo-4242 is not allowed here"))
+    guesser = HttpGuesser(make_settings(url=secret_url), env=ENV)
+    error, _ = fail(guesser, EndpointRefused)
+    assert "tok-userinfo-4242" not in error.reason
+    assert "tok-userinfo-4242" not in json.dumps(guesser.describe())
+
+
 # --- through the loop ---------------------------------------------------------------------------
 
 def _run(guesser, budget):
