@@ -60,6 +60,7 @@ fuzz: $(STAMP)
 schema: $(VENV)/.installed
 	$(VPY) -c "from plansieve.report import SCHEMA_PATH, schema_text; SCHEMA_PATH.parent.mkdir(parents=True, exist_ok=True); SCHEMA_PATH.write_text(schema_text())"
 	$(VPY) -c "from plansieve.loop.events import SCHEMA_PATH, schema_text; SCHEMA_PATH.write_text(schema_text())"
+	$(VPY) -c "from plansieve.adapters.config_file import SCHEMA_PATH, schema_text; SCHEMA_PATH.write_text(schema_text())"
 
 clean:
 	rm -rf $(VENV) build dist *.egg-info demo-output

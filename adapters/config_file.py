@@ -14,6 +14,7 @@ back (:func:`effective_text`) hides any credential written literally.
 
 from __future__ import annotations
 
+import json
 import math
 import os
 import re
@@ -184,6 +185,20 @@ class RunConfig(_Section):
         copy = self.model_copy()
         copy._source = source
         return copy
+
+
+SCHEMA_PATH = Path(__file__).resolve().parents[1] / "docs" / "schema" / "config.schema.json"
+
+
+def schema_text() -> str:
+    """The JSON Schema of a configuration file, as kept in docs/schema/config.schema.json
+    (editors that read TOML against a JSON Schema can use it)."""
+    schema = {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        **RunConfig.model_json_schema(mode="validation"),
+        "title": "plansieve configuration (plansieve.toml)",
+    }
+    return json.dumps(schema, indent=2, ensure_ascii=False) + "\n"
 
 
 # -- reading ---------------------------------------------------------------------------------

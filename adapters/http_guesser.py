@@ -449,7 +449,11 @@ class HttpGuesser:
             opening = _one_line(body.decode(charset or "utf-8", errors="replace"),
                                 _OPENING_CHARS)
             media = content_type.split(";", 1)[0].strip()
-            raise unreadable(f"the answer is {media}, not JSON; it begins: {opening!r}")
+            hint = ""
+            if media.lower() == "text/event-stream":
+                hint = ("; answers streamed in parts are not read, so leave `stream` out of "
+                        "guesser.http.sampling (or set it to false)")
+            raise unreadable(f"the answer is {media}, not JSON; it begins: {opening!r}{hint}")
         try:
             data = json.loads(body)
         except (UnicodeDecodeError, json.JSONDecodeError) as e:

@@ -551,6 +551,16 @@ def test_wrong_content_type_is_unreadable(router):
     assert "text/html" in error.reason and "not JSON" in error.reason
 
 
+def test_a_streamed_answer_says_how_to_turn_streaming_off(router):
+    # Source: the WHATWG HTML Living Standard, "Server-sent events" (text/event-stream,
+    # "data:" lines), from memory.
+    router.post(URL).mock(return_value=httpx.Response(
+        200, text='data: {"choices": [{"delta": {"content": "(lift"}}]}\n\n',
+        headers={"content-type": "text/event-stream"}))
+    error, _ = fail(make_guesser(), AnswerUnreadable)
+    assert "text/event-stream, not JSON" in error.reason and "`stream`" in error.reason
+
+
 def test_problem_json_is_json(router):
     # Source: RFC 6839 sec. 3.1: "+json" media types are JSON.
     router.post(URL).mock(return_value=httpx.Response(
