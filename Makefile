@@ -55,6 +55,7 @@ bench: $(STAMP)
 fuzz: $(STAMP)
 	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -p no:cacheprovider -m slow tests
 	PLANSIEVE_ORACLE_PLANS=2200 $(VPY) -m pytest -q -p no:cacheprovider tests/test_oracle_differential.py
+	PLANSIEVE_FUZZ_EXAMPLES=5000 $(VPY) -m pytest -q -p no:cacheprovider tests/test_http_fuzz.py
 
 # Rewrite docs/schema/ from the models (tests/test_schema.py says when it is stale).
 schema: $(VENV)/.installed
