@@ -160,10 +160,11 @@ class Template:
     text: str
     path: str | None = None
 
-    def describe(self) -> str | dict[str, str]:
-        if self.path is None:
-            return "default"
-        return {"path": self.path, "sha256": hashlib.sha256(self.text.encode()).hexdigest()}
+    def describe(self) -> dict[str, str]:
+        """Where the template came from and the sha256 of its text, so an audit can tell
+        which wording was sent (the defaults change between versions)."""
+        return {"path": self.path or "(plansieve's default)",
+                "sha256": hashlib.sha256(self.text.encode()).hexdigest()}
 
 
 @functools.lru_cache(maxsize=None)
@@ -247,7 +248,7 @@ class PromptBook:
         return cls(**chosen)
 
     def describe(self) -> dict[str, Any]:
-        """For each template: "default", or its path and the sha256 of its text."""
+        """For each template: its path (or that it is the default) and its text's sha256."""
         return {part: t.describe() for part, t in self.templates.items()}
 
     # values

@@ -50,6 +50,7 @@ from plansieve.adapters.prompts import (
     PromptBook,
     Template,
     actions_summary,
+    default_template,
     limits_summary,
     plan_format,
 )
@@ -355,7 +356,12 @@ def _request(task, round_=1, history=(), task_id="veyrun-tuesday"):
 
 def test_default_book_round_one(harbour):
     book = PromptBook.load(Prompts())
-    assert book.describe() == {"system": "default", "task": "default", "retry": "default"}
+    desc = book.describe()
+    assert {part: d["path"] for part, d in desc.items()} == dict.fromkeys(
+        ("system", "task", "retry"), "(plansieve's default)")
+    # Source: FIPS 180-4 SHA-256, through hashlib: the digest of the shipped text.
+    shipped = default_template("task").text.encode()
+    assert desc["task"]["sha256"] == hashlib.sha256(shipped).hexdigest()
     msgs = book.messages(_request(harbour))
     assert [m["role"] for m in msgs] == ["system", "user"]
     system, task = msgs[0]["content"], msgs[1]["content"]
@@ -500,7 +506,7 @@ def test_custom_templates(tmp_path, harbour):
     (tmp_path / "p" / "sys.txt").write_text("   \n", encoding="utf-8")
     book = PromptBook.load(Prompts(task="p/task.txt", system="p/sys.txt"), base_dir=tmp_path)
     desc = book.describe()
-    assert desc["retry"] == "default"
+    assert desc["retry"]["path"] == "(plansieve's default)"
     text = (tmp_path / "p" / "task.txt").read_bytes().decode().replace("\r\n", "\n")
     assert desc["task"] == {"path": str(tmp_path / "p" / "task.txt"),
                             "sha256": hashlib.sha256(text.encode()).hexdigest()}
