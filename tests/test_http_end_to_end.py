@@ -363,3 +363,39 @@ def test_budget_cuts_a_stalled_answer(task, key_env, tmp_path):
     assert outcome.stop == "seconds"
     assert elapsed < 10
     assert events(trace_path, "run-finished")[-1]["stop"] == "seconds"
+
+
+def test_the_local_model_example_runs_from_the_command_line(task, tmp_path, monkeypatch, capsys):
+    """examples/local-model/plansieve.toml, pointed at the test server instead of a model
+    on port 8080: the CLI reaches a verified plan over real sockets, through a 503."""
+    from plansieve.cli import main
+    from plansieve.critics.limits import attach_limits, load_limits
+
+    example = ROOT / "examples" / "local-model" / "plansieve.toml"
+    harbour = (ROOT / "examples" / "harbour").as_posix()
+    monkeypatch.setenv("PLANNER_API_KEY", KEY)
+    # the example checks the shift's limits file, so the server plans within it
+    limited = attach_limits(task, load_limits(ROOT / "examples" / "harbour" / "limits.toml"))
+    with PlanServer(limited, api_key=KEY, wrong_rounds=1,
+                    faults=[ps.status(503, retry_after=0)]) as server:
+        text = (example.read_text()
+                .replace('"../harbour/', f'"{harbour}/')
+                .replace("http://127.0.0.1:8080/v1/chat/completions", server.url)
+                .replace('path = "veyrun-run.jsonl"', 'path = "run.jsonl"')
+                .replace("first_wait = 1\n", "first_wait = 0.01\n"))
+        assert server.url in text and "../harbour" not in text
+        config = tmp_path / "plansieve.toml"
+        config.write_text(text)
+        code = main(["run", "--config", str(config)])
+        out, err = capsys.readouterr()
+        served = server.served
+    assert code == 0, out + err
+    assert "round 1, try 1 failed: the endpoint answered 503" in out
+    assert "VERIFIED in round 2" in out
+    assert [s.round for s in served] == [1, 1, 2]
+    events = read_trace(tmp_path / "run.jsonl")
+    assert verify_trace(tmp_path / "run.jsonl").intact
+    assert [(e.kind, e.attempt) for e in events if e.kind.startswith("guess-")
+            and e.kind != "guess-asked"] == [("guess-failed", 1), ("guess-received", 2),
+                                             ("guess-received", 1)]
+    assert KEY not in (tmp_path / "run.jsonl").read_text() + out + err
