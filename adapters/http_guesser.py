@@ -16,9 +16,11 @@ Each failed try that will be tried again is reported to the loop through
 
 One instance serves any number of loops at once: it keeps only its settings. The
 connection pool and the endpoint's concurrency and rate limits are shared per event
-loop (:mod:`plansieve.adapters.http_pool`). Secrets filled in from the environment,
-and credentials written into sensitive headers or the URL, are scrubbed out of
-everything the guesser returns, raises or logs; headers are never logged.
+loop (:mod:`plansieve.adapters.http_pool`). Credentials — values filled in from the
+environment into sensitive headers or the URL's credentials, any other filled-in value
+of 8 characters or more, and keys written literally into sensitive headers or the URL —
+are scrubbed out of everything the guesser returns, raises or logs; headers are never
+logged.
 """
 
 from __future__ import annotations
@@ -108,6 +110,17 @@ _HTTPX_LOG_SCRUBBER = _ScrubHttpxLog()
 logging.getLogger("httpx").addFilter(_HTTPX_LOG_SCRUBBER)
 
 
+# A value filled in from the environment outside a credential's place (a host, a port, a
+# region, a model name) is hidden only from this length on: scrubbing a short everyday
+# value such as "eu" or "1" out of every answer would spoil the plans themselves. Any
+# key worth the name is longer (common practice; not from a standard).
+_SHORTEST_SECRET = 8
+
+
+def _worth_hiding(values: set[str]) -> set[str]:
+    return {v for v in values if len(v) >= _SHORTEST_SECRET}
+
+
 def _phrase(status: int) -> str:
     try:
         return f"{status} ({http.HTTPStatus(status).phrase})"
@@ -147,14 +160,18 @@ class HttpGuesser:
         env = os.environ if env is None else env
         self.settings = settings
         self._client = client
-        found: set[str] = set()
+        filled: set[str] = set()
         self._url = fill_env(settings.url, field=f"{_FIELD}.url", source=source, env=env,
-                             found=found)
+                             found=filled)
         self._shown_url = mask_url(settings.url)
-        found |= self._check_url(source)
-        self._headers = {name: fill_env(value, field=f"{_FIELD}.headers.{name}", source=source,
-                                        env=env, found=found)
-                         for name, value in settings.headers.items()}
+        # Credentials in the URL (userinfo, sensitive query values) are secrets at any length.
+        found = self._check_url(source) | _worth_hiding(filled)
+        self._headers = {}
+        for name, value in settings.headers.items():
+            filled = set()
+            self._headers[name] = fill_env(value, field=f"{_FIELD}.headers.{name}",
+                                           source=source, env=env, found=filled)
+            found |= filled if is_sensitive(name) else _worth_hiding(filled)
         found |= literal_secrets(settings.headers)
         self._secrets = Secrets(found)
         self._check_headers(source)

@@ -910,3 +910,17 @@ def test_loop_budget_caps_retry_after(router):
     assert route.call_count == 1
     failed = [(e["attempt"], e["retry"]) for e in sink.events if e["kind"] == "guess-failed"]
     assert failed == [(1, False)]
+
+
+def test_short_everyday_values_from_the_environment_do_not_spoil_answers(router):
+    # A port and a region filled in from the environment are not credentials: scrubbing
+    # "1" or "eu" out of every answer would change the plan itself. A key in a sensitive
+    # header is hidden whatever its length.
+    router.post(url__startswith="http://planner.test:1/").mock(
+        return_value=chat("(lift carrier-1 crate-1 eu-dock) ; key zq9"))
+    guesser = HttpGuesser(make_settings(
+        url="http://planner.test:${PORT}/v1/chat",
+        headers={"X-Region": "${REGION}", "X-Api-Key": "${SHORT_KEY}"}),
+        env={"PORT": "1", "REGION": "eu", "SHORT_KEY": "zq9"})
+    guess, _ = ask(guesser)
+    assert guess.text == "(lift carrier-1 crate-1 eu-dock) ; key ***"
