@@ -94,7 +94,8 @@ def build_parser() -> argparse.ArgumentParser:
                           "network, the default); 'http' asks the endpoint in the "
                           "configuration's [guesser.http] table")
     run.add_argument("--rounds", type=_positive_int, metavar="N",
-                     help="give up after N rounds; retried tries within a round do not count (default 5)")
+                     help="give up after N rounds; retried tries within a round do not "
+                          "count (default 5)")
     run.add_argument("--seconds", type=_positive_float, metavar="S",
                      help="give up after S seconds of wall time")
     run.add_argument("--tokens", type=_positive_int, metavar="N",
