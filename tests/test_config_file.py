@@ -204,8 +204,8 @@ def test_the_example_for_a_local_model_server_reads():
 @pytest.mark.parametrize("text,field,words,line", [
     ('[guesser]\nkind = "remote"\n', "guesser.kind",
      "expected one of local, http (got 'remote')", 2),
-    ('[guesser.http]\nurl = "http://h"\npreset = "openai"\n', "guesser.http.preset",
-     "expected one of chat-messages, prompt-text, custom (got 'openai')", 3),
+    ('[guesser.http]\nurl = "http://h"\npreset = "chat"\n', "guesser.http.preset",
+     "expected one of chat-messages, prompt-text, custom (got 'chat')", 3),
     ('[guesser.http]\nurl = "http://h"\nconversation = "memory"\n', "guesser.http.conversation",
      "expected one of history, fresh (got 'memory')", 3),
     ('[guesser.http]\nurl = "http://h"\n[guesser.http.retries]\nattempts = 0\n',
