@@ -200,6 +200,16 @@ def history_of(events: list[dict]) -> tuple[Attempt, ...]:
                  for e in feedback)
 
 
+async def each_caller(one: Callable[[int], Awaitable[None]], callers: int,
+                      at_once: bool) -> None:
+    """Run ``one(i)`` for every caller: all at once, or one after another."""
+    if at_once:
+        await asyncio.gather(*[one(i) for i in range(callers)])
+    else:
+        for i in range(callers):
+            await one(i)
+
+
 def alone_run(task, settings, history, loops: int, rounds: int, tag: str,
               at_once: bool = True):
     """The HTTP guesser without a loop around it: ``loops`` callers of ``rounds`` calls
@@ -217,11 +227,7 @@ def alone_run(task, settings, history, loops: int, rounds: int, tag: str,
                 times[(request.task_id, r)] = time.perf_counter() - started
 
         try:
-            if at_once:
-                await asyncio.gather(*[one(i) for i in range(loops)])
-            else:
-                for i in range(loops):
-                    await one(i)
+            await each_caller(one, loops, at_once)
         finally:
             await guesser.aclose()
         return times
@@ -257,11 +263,7 @@ def bare_run(task, url, history, loops: int, rounds: int, tag: str, split: int |
                 times[(f"{tag}-{i}", r)] = time.perf_counter() - started
 
         try:
-            if at_once:
-                await asyncio.gather(*[one(i) for i in range(loops)])
-            else:
-                for i in range(loops):
-                    await one(i)
+            await each_caller(one, loops, at_once)
         finally:
             for client in clients:
                 await client.aclose()
