@@ -6,8 +6,8 @@ event loop keep connections alive and reuse them. A client cannot cross event
 loops (its connections belong to the loop that opened them), so each running loop
 gets its own, found by the loop itself.
 
-The connections are split over small clients ("shards") of about
-``SHARD_CONNECTIONS`` calls in flight each, and each call leases the least busy one:
+The connections are split over small clients ("shards") of at most
+``SHARD_CONNECTIONS`` calls in flight each, and each call leases one (:func:`lease`):
 httpx's pool does bookkeeping over all of its connections at every request, which
 grows with the square of the connections in one pool, so at 200 calls in flight
 one big pool spends most of the client's time there (measured by
@@ -95,12 +95,16 @@ def _tls() -> ssl.SSLContext:
 
 @contextlib.contextmanager
 def lease() -> Iterator[httpx.AsyncClient]:
-    """A client of the running event loop's pool for one call: the least busy shard,
-    or a new one when every shard has ``SHARD_CONNECTIONS`` calls in flight."""
+    """A client of the running event loop's pool for one call: the busiest shard that
+    still has room, or a new one when every shard has ``SHARD_CONNECTIONS`` calls in
+    flight. Filling shards before spreading keeps each call on a shard whose idle
+    connections it can reuse, so the connections opened stay at the peak of calls in
+    flight (spreading evenly would open new ones on a quiet shard)."""
     share = _share()
     share.shards = [s for s in share.shards if not s.client.is_closed]
-    shard = min(share.shards, key=lambda s: s.busy, default=None)
-    if shard is None or shard.busy >= SHARD_CONNECTIONS:
+    roomy = [s for s in share.shards if s.busy < SHARD_CONNECTIONS]
+    shard = max(roomy, key=lambda s: s.busy, default=None)
+    if shard is None:
         shard = _Shard(httpx.AsyncClient(limits=POOL_LIMITS, follow_redirects=False,
                                          verify=_tls()))
         share.shards.append(shard)

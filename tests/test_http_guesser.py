@@ -315,6 +315,15 @@ def test_calls_in_flight_spread_over_small_shards():
         # all idle again: the next call takes one of the shards already open
         with lease() as again:
             assert again in held and len(open_clients()) == 3
+        # calls fill the busiest shard with room first, so a call that ends and the next
+        # that starts meet on the same shard (and its idle connection)
+        with contextlib.ExitStack() as stack:
+            first = [stack.enter_context(lease()) for _ in range(SHARD_CONNECTIONS - 1)]
+            assert len(set(first)) == 1
+            with lease() as last_seat:
+                assert last_seat is first[0]
+            with lease() as next_call:
+                assert next_call is first[0]
         await close_shared_clients()
         assert open_clients() == []
 
